@@ -1,0 +1,221 @@
+"""``study.toml``: loading and validation against the installed plugins' catalogue.
+
+Every error names the key (``[geometries.bob14] inner_radius``) and the problem; quantities
+are strings with units (``"14.0 mm"``), parsed through :mod:`gammadot.units` and checked for
+their dimension. A study folder without ``study.toml`` gets the defaults.
+"""
+
+from __future__ import annotations
+
+import difflib
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Mapping
+
+from .datamodel import QUANTITIES
+from .units import DIMENSIONS, UnitError, parse_quantity
+
+if TYPE_CHECKING:
+    from .registry import Registry
+
+STUDY_FILE = "study.toml"
+
+
+class StudyConfigError(ValueError):
+    """study.toml cannot be used; the message names the file, the key and the problem."""
+
+
+@dataclass(frozen=True)
+class GeometryConfig:
+    """A geometry of the study: its id, its type (a geometry plugin id) and its values (SI)."""
+
+    id: str
+    type: str
+    values: Mapping[str, float | str]
+
+    def with_overrides(self, overrides: Mapping[str, Any]) -> "GeometryConfig":
+        """A copy whose values are replaced by those of ``overrides`` with the same name."""
+        merged = dict(self.values)
+        merged.update({k: v for k, v in overrides.items() if k in self.values or k in merged})
+        return GeometryConfig(self.id, self.type, merged)
+
+
+@dataclass(frozen=True)
+class FitConfig:
+    """``[fit]``: which models to fit (``None``: every installed model)."""
+
+    models: tuple[str, ...] | None = None
+
+
+@dataclass(frozen=True)
+class StudyConfig:
+    """A study's settings; defaults when the folder has no ``study.toml``."""
+
+    title: str
+    description: str = ""
+    geometries: Mapping[str, GeometryConfig] = field(default_factory=dict)
+    columns: Mapping[str, str] = field(default_factory=dict)
+    fit: FitConfig = field(default_factory=FitConfig)
+    checks: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
+    specs: tuple[Mapping[str, Any], ...] = ()
+    limits: Mapping[str, float] = field(default_factory=dict)
+    density: float | None = None
+    source: str | None = None
+
+
+_TOP_KEYS = ("study", "geometries", "columns", "fit", "checks", "spec", "limits")
+_STUDY_KEYS = ("title", "description", "density")
+_FIT_KEYS = ("models",)
+_SPEC_KEYS = ("quantity", "shear_rate", "min", "max", "name", "model", "parameter")
+_LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque"}
+
+
+def load_study_config(study_dir: Path, registry: "Registry") -> StudyConfig:
+    """Read ``study_dir/study.toml`` (if present) and validate it against ``registry``."""
+    path = study_dir / STUDY_FILE
+    if not path.exists():
+        return StudyConfig(title=study_dir.resolve().name)
+    try:
+        data = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+        raise StudyConfigError(f"{path.name}: not valid TOML: {exc}") from None
+    return parse_study_config(data, registry, default_title=study_dir.resolve().name, source=path.name)
+
+
+def parse_study_config(data: Mapping[str, Any], registry: "Registry", *, default_title: str,
+                       source: str = STUDY_FILE) -> StudyConfig:
+    """Validate a parsed ``study.toml`` mapping; raise :class:`StudyConfigError` naming the key."""
+    _reject_unknown(data, _TOP_KEYS, "", source)
+    study = _table(data, "study", source)
+    _reject_unknown(study, _STUDY_KEYS, "[study] ", source)
+    density = _quantity(study["density"], "density", "[study] density", source) if "density" in study else None
+    return StudyConfig(
+        title=str(study.get("title", default_title)),
+        description=str(study.get("description", "")),
+        geometries=_geometries(_table(data, "geometries", source), registry, source),
+        columns=_columns(_table(data, "columns", source), source),
+        fit=_fit(_table(data, "fit", source), registry, source),
+        checks=_checks(_table(data, "checks", source), registry, source),
+        specs=_specs(data.get("spec", []), source),
+        limits=_limits(_table(data, "limits", source), source),
+        density=density,
+        source=source,
+    )
+
+
+def _table(data: Mapping[str, Any], key: str, source: str) -> Mapping[str, Any]:
+    value = data.get(key, {})
+    if not isinstance(value, Mapping):
+        raise StudyConfigError(f"{source}: '{key}' must be a table ([{key}])")
+    return value
+
+
+def _reject_unknown(table: Mapping[str, Any], allowed: tuple[str, ...] | Mapping[str, Any],
+                    where: str, source: str) -> None:
+    for key in table:
+        if key not in allowed:
+            close = difflib.get_close_matches(key, list(allowed), n=1)
+            hint = f" (did you mean '{close[0]}'?)" if close else f" (known: {', '.join(allowed)})"
+            raise StudyConfigError(f"{source}: {where}unknown key '{key}'{hint}")
+
+
+def _quantity(value: Any, dimension: str, where: str, source: str) -> float:
+    if isinstance(value, bool) or not isinstance(value, (str, int, float)):
+        raise StudyConfigError(f"{source}: {where} must be a quantity with a unit, e.g. \"1.0 mm\"")
+    try:
+        return parse_quantity(str(value), dimension)
+    except UnitError as exc:
+        raise StudyConfigError(f"{source}: {where}: {exc}") from None
+
+
+def _geometries(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, GeometryConfig]:
+    result: dict[str, GeometryConfig] = {}
+    for geometry_id, entry in table.items():
+        where = f"[geometries.{geometry_id}]"
+        if not isinstance(entry, Mapping):
+            raise StudyConfigError(f"{source}: {where} must be a table")
+        kind = entry.get("type")
+        if kind is None:
+            raise StudyConfigError(f"{source}: {where} is missing the required key 'type'")
+        if kind not in registry.geometries or kind == "instrument":
+            known = ", ".join(k for k in registry.geometries if k != "instrument")
+            raise StudyConfigError(f"{source}: {where} type '{kind}' is not a known geometry (known: {known})")
+        result[geometry_id] = GeometryConfig(geometry_id, kind,
+                                             _geometry_values(entry, registry.geometries[kind].record, where, source))
+    return result
+
+
+def _geometry_values(entry: Mapping[str, Any], geometry: Any, where: str, source: str) -> dict[str, float | str]:
+    parameters = {p.name: p for p in geometry.parameters}
+    _reject_unknown({k: v for k, v in entry.items() if k != "type"}, tuple(parameters), f"{where} ", source)
+    values: dict[str, float | str] = {}
+    for name, param in parameters.items():
+        if name not in entry:
+            if param.default is not None:
+                values[name] = param.default
+            elif param.required:
+                raise StudyConfigError(f"{source}: {where} is missing the required key '{name}' ({param.description})")
+            continue
+        raw = entry[name]
+        if param.dimension == "text":
+            if raw not in param.choices:
+                raise StudyConfigError(f"{source}: {where} {name} = '{raw}' is not one of {', '.join(param.choices)}")
+            values[name] = raw
+        else:
+            values[name] = _quantity(raw, param.dimension, f"{where} {name}", source)
+            if not values[name] > 0 and param.dimension in ("length", "angle"):
+                raise StudyConfigError(f"{source}: {where} {name} must be positive")
+    return values
+
+
+def _columns(table: Mapping[str, Any], source: str) -> dict[str, str]:
+    for header, quantity in table.items():
+        if quantity not in QUANTITIES:
+            raise StudyConfigError(f"{source}: [columns] '{header}' maps to '{quantity}', which is not one of "
+                                   f"{', '.join(QUANTITIES)}")
+    return dict(table)
+
+
+def _fit(table: Mapping[str, Any], registry: "Registry", source: str) -> FitConfig:
+    _reject_unknown(table, _FIT_KEYS, "[fit] ", source)
+    if "models" not in table:
+        return FitConfig()
+    models = table["models"]
+    if not isinstance(models, list) or not all(isinstance(m, str) for m in models):
+        raise StudyConfigError(f"{source}: [fit] models must be a list of model ids")
+    for model in models:
+        if model not in registry.models:
+            raise StudyConfigError(f"{source}: [fit] models: unknown model '{model}' "
+                                   f"(installed: {', '.join(registry.models)})")
+    return FitConfig(models=tuple(models))
+
+
+def _checks(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, Mapping[str, Any]]:
+    for check_id, settings in table.items():
+        if check_id not in registry.checks:
+            raise StudyConfigError(f"{source}: [checks.{check_id}] is not an installed check "
+                                   f"(installed: {', '.join(registry.checks)})")
+        if not isinstance(settings, Mapping):
+            raise StudyConfigError(f"{source}: [checks.{check_id}] must be a table")
+    return {k: dict(v) for k, v in table.items()}
+
+
+def _specs(entries: Any, source: str) -> tuple[Mapping[str, Any], ...]:
+    if not isinstance(entries, list):
+        raise StudyConfigError(f"{source}: 'spec' must be an array of tables ([[spec]])")
+    for i, entry in enumerate(entries, 1):
+        _reject_unknown(entry, _SPEC_KEYS, f"[[spec]] #{i} ", source)
+        if "quantity" not in entry:
+            raise StudyConfigError(f"{source}: [[spec]] #{i} is missing the required key 'quantity'")
+    return tuple(dict(e) for e in entries)
+
+
+def _limits(table: Mapping[str, Any], source: str) -> dict[str, float]:
+    _reject_unknown(table, tuple(_LIMIT_KEYS), "[limits] ", source)
+    return {k: _quantity(v, _LIMIT_KEYS[k], f"[limits] {k}", source) for k, v in table.items()}
+
+
+def dimension_label(dimension: str) -> str:
+    """The SI label of a dimension key (for messages and docs)."""
+    return DIMENSIONS[dimension].label

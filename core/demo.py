@@ -1,0 +1,782 @@
+"""Write gammadot's demo study: a fictitious QC lab's flow curves, generated from models.
+
+The scenario is invented from start to finish. **Merrowind Formulations Ltd** (fictitious) makes
+personal-care products and decorative coatings at its Kestle Bridge plant (fictitious). Its QC
+lab measures a flow curve of every production batch on two rotational rheometers (lab assets
+MWF-RH-01 and MWF-RH-02) and files the exports by month and production line:
+
+- Softmere body lotion, batches LT-2611 and LT-2612: shear-thinning (Carreau);
+- Harbourline satin wall paint, batch PT-2611: shear-thinning (Cross);
+- Calmora zinc barrier ointment, batch ZB-2611: yield stress (Casson);
+- hand-cream base HCB-2612: yield stress (Herschel–Bulkley);
+- Tessel tile-joint paste JP-2612: yield stress (Bingham);
+- in-house check oil RO-0926: near-Newtonian reference.
+
+Every number comes from a constitutive model (see :func:`demo_truth`) turned into what an
+instrument records. Viscosity-like parameters follow an Arrhenius shift with temperature,
+yield stresses fall linearly with temperature. The torque the model implies is computed with
+the geometry's physics (SI units; Ω angular velocity in rad/s, M torque in N·m, τ stress in Pa):
+
+- cone-plate, small angle α: γ̇ = Ω/α everywhere, M = 2πR³τ(γ̇)/3; a truncated tip (flat
+  centre of radius R_t = h_t/α at gap h_t) adds 2π∫₀^{R_t} τ(Ωr/h_t) r² dr and removes its
+  share of the cone;
+- parallel plates, gap h: γ̇(r) = Ωr/h, M = 2π∫₀ᴿ τ(Ωr/h) r² dr (quadrature);
+- concentric cylinders, inner cylinder turning, outer fixed, δ = Ro/Ri: τ(r) = τ_i (Ri/r)², so
+  Ω = ½∫_{τ_i/δ²}^{τ_i} γ̇(τ)/τ dτ (γ̇ = 0 below a yield stress); τ_i is solved for each Ω
+  (Brent's method) and M = 2πRi²Lτ_i. No end effects are simulated.
+
+Then the artefacts of a real lab: 1.5 % multiplicative torque noise, an additive noise of
+0.08 µN·m at the instrument's resolution floor (visible at the lowest torques of the check
+oil), one clear outlier (an air bubble in LT-2611 at 20 °C) and one export that is broken on
+purpose and must be rejected. "Instrument-computed" exports hold the shear rate, stress and
+viscosity an instrument computes from a cone-plate's torque and speed; raw exports hold only
+torque and speed, and their geometry is defined in ``study.toml``. The exports use several
+text dialects (delimiters, decimal marks, encodings, unit spellings, several runs per file).
+
+Pure numpy/scipy and the standard library; deterministic (fixed seed per run), so two calls
+write byte-identical files.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any, Callable, Mapping
+
+import numpy as np
+from scipy.integrate import quad
+from scipy.optimize import brentq
+
+__all__ = [
+    "DEMO_SEED",
+    "ConcentricCylinder",
+    "ConePlate",
+    "FlowModel",
+    "ParallelPlate",
+    "cone_plate_torque",
+    "couette_inner_stress",
+    "couette_speed",
+    "couette_torque",
+    "demo_truth",
+    "parallel_plate_torque",
+    "write_demo_study",
+]
+
+DEMO_SEED = 20261104
+REL_NOISE = 0.015  # relative standard deviation of the measured torque (1)
+TORQUE_FLOOR = 0.08e-6  # N·m, standard deviation of the additive noise at the resolution floor
+OUTLIER_FACTOR = 1.45  # torque multiplier of the one outlier point (air bubble)
+GAS_CONSTANT = 8.314462618  # J/(mol·K)
+REFERENCE_TEMPERATURE = 20.0  # °C, temperature of the tabulated sample parameters
+
+
+# --------------------------------------------------------------------------- models
+
+
+def _stress_newtonian(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = ηγ̇ (Pa; rate in 1/s, eta in Pa·s)."""
+    return p["eta"] * rate
+
+
+def _stress_power_law(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = Kγ̇ⁿ (Pa; K in Pa·sⁿ)."""
+    return p["K"] * rate ** p["n"]
+
+
+def _stress_bingham(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = τ_y + η_p γ̇ for γ̇ ≥ 0 (Pa; the value at γ̇ = 0 is the yield limit)."""
+    return p["tau_y"] + p["eta_p"] * rate
+
+
+def _stress_herschel_bulkley(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = τ_y + Kγ̇ⁿ for γ̇ ≥ 0 (Pa)."""
+    return p["tau_y"] + p["K"] * rate ** p["n"]
+
+
+def _stress_casson(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """√τ = √τ_y + √(η_c γ̇) for γ̇ ≥ 0 (Pa)."""
+    return (np.sqrt(p["tau_y"]) + np.sqrt(p["eta_c"] * rate)) ** 2
+
+
+def _stress_cross(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = γ̇[η∞ + (η0 − η∞)/(1 + (λγ̇)^m)] (Pa; lam in s)."""
+    eta = p["eta_inf"] + (p["eta0"] - p["eta_inf"]) / (1.0 + (p["lam"] * rate) ** p["m"])
+    return eta * rate
+
+
+def _stress_carreau(rate: np.ndarray, p: Mapping[str, float]) -> np.ndarray:
+    """τ = γ̇[η∞ + (η0 − η∞)(1 + (λγ̇)²)^((n−1)/2)] (Pa)."""
+    shape = (1.0 + (p["lam"] * rate) ** 2) ** ((p["n"] - 1.0) / 2.0)
+    return (p["eta_inf"] + (p["eta0"] - p["eta_inf"]) * shape) * rate
+
+
+_STRESS: dict[str, Callable[[np.ndarray, Mapping[str, float]], np.ndarray]] = {
+    "newtonian": _stress_newtonian,
+    "power_law": _stress_power_law,
+    "bingham": _stress_bingham,
+    "herschel_bulkley": _stress_herschel_bulkley,
+    "casson": _stress_casson,
+    "cross": _stress_cross,
+    "carreau": _stress_carreau,
+}
+
+
+def _excess(stress: float, p: Mapping[str, float]) -> float:
+    """Stress above the yield stress, never negative (Pa)."""
+    return max(stress - p["tau_y"], 0.0)
+
+
+# Analytic inverses γ̇(τ) in 1/s for τ in Pa; zero below a yield stress.
+_RATE: dict[str, Callable[[float, Mapping[str, float]], float]] = {
+    "newtonian": lambda s, p: s / p["eta"],
+    "power_law": lambda s, p: (s / p["K"]) ** (1.0 / p["n"]),
+    "bingham": lambda s, p: _excess(s, p) / p["eta_p"],
+    "herschel_bulkley": lambda s, p: (_excess(s, p) / p["K"]) ** (1.0 / p["n"]),
+    "casson": lambda s, p: max(math.sqrt(s) - math.sqrt(p["tau_y"]), 0.0) ** 2 / p["eta_c"],
+}
+
+
+@dataclass(frozen=True)
+class FlowModel:
+    """A generalized-Newtonian model: id as in gammadot's model table, parameters in SI."""
+
+    name: str
+    params: Mapping[str, float]
+
+    def stress(self, rate: Any) -> np.ndarray:
+        """Shear stress (Pa) at shear rate ``rate`` (1/s, ≥ 0), vectorised."""
+        return _STRESS[self.name](np.asarray(rate, dtype=float), self.params)
+
+    def rate(self, stress: float) -> float:
+        """Shear rate (1/s) at shear stress ``stress`` (Pa); 0 below a yield stress."""
+        inverse = _RATE.get(self.name)
+        return inverse(stress, self.params) if inverse else self._rate_numeric(stress)
+
+    @property
+    def yield_stress(self) -> float:
+        """Yield stress τ_y (Pa), 0 for models without one."""
+        return float(self.params.get("tau_y", 0.0))
+
+    def _rate_numeric(self, stress: float) -> float:
+        """γ̇ (1/s) with τ(γ̇) = stress, by Brent's method on ln γ̇ (τ increases with γ̇)."""
+        if stress <= 0.0:
+            return 0.0
+        target = math.log(stress)
+        root = brentq(lambda x: math.log(float(self.stress(math.exp(x)))) - target,
+                      -60.0, 60.0, xtol=1e-14, rtol=1e-14)
+        return math.exp(root)
+
+
+# ----------------------------------------------------------------------- geometries
+
+
+def cone_plate_torque(model: FlowModel, omega: float, radius: float, angle: float,
+                      truncation_gap: float = 0.0) -> float:
+    """Torque (N·m) on a cone of radius ``radius`` (m) and small angle ``angle`` (rad) at Ω (rad/s).
+
+    Small-angle cone-plate: γ̇ = Ω/α, M = 2πR³τ(γ̇)/3. A truncated tip leaves a flat centre of
+    radius R_t = h_t/α at gap h_t (m), which acts as a small parallel-plate pair.
+    """
+    tip_radius = truncation_gap / angle
+    cone = 2.0 * math.pi / 3.0 * float(model.stress(omega / angle)) * (radius**3 - tip_radius**3)
+    if truncation_gap <= 0.0:
+        return cone
+    return cone + parallel_plate_torque(model, omega, tip_radius, truncation_gap)
+
+
+def parallel_plate_torque(model: FlowModel, omega: float, radius: float, gap: float) -> float:
+    """Torque (N·m) on a plate of radius ``radius`` (m) at gap ``gap`` (m) and Ω (rad/s).
+
+    γ̇(r) = Ωr/h; M = 2π∫₀ᴿ τ(Ωr/h) r² dr, by adaptive quadrature.
+    """
+    value, _ = quad(lambda r: float(model.stress(omega * r / gap)) * r * r, 0.0, radius,
+                    epsabs=0.0, epsrel=1e-11, limit=200)
+    return 2.0 * math.pi * value
+
+
+def couette_speed(model: FlowModel, tau_i: float, delta: float) -> float:
+    """Ω (rad/s) of the inner cylinder for inner-wall stress ``tau_i`` (Pa), δ = Ro/Ri, outer fixed.
+
+    τ(r) = τ_i (Ri/r)², so dr/r = −dτ/(2τ) and Ω = ∫ γ̇/r dr = ½∫_{τ_i/δ²}^{τ_i} γ̇(τ)/τ dτ;
+    γ̇ = 0 where τ is below a yield stress (unsheared plug next to the outer wall).
+    """
+    lower = max(tau_i / delta**2, model.yield_stress)
+    if tau_i <= lower:
+        return 0.0
+    value, _ = quad(lambda t: model.rate(t) / t, lower, tau_i, epsabs=0.0, epsrel=1e-12, limit=200)
+    return 0.5 * value
+
+
+def couette_inner_stress(model: FlowModel, omega: float, delta: float) -> float:
+    """Inner-wall shear stress τ_i (Pa) that turns the inner cylinder at Ω (rad/s), δ = Ro/Ri."""
+    def mismatch(tau: float) -> float:
+        return couette_speed(model, tau, delta) - omega
+
+    newtonian_rate = 2.0 * omega * delta**2 / (delta**2 - 1.0)
+    high = 2.0 * float(model.stress(newtonian_rate)) + model.yield_stress
+    while mismatch(high) < 0.0:
+        high *= 2.0
+    low = model.yield_stress or high / 2.0
+    while mismatch(low) > 0.0:
+        low /= 2.0
+    return brentq(mismatch, low, high, xtol=1e-15 * high, rtol=1e-14)
+
+
+@dataclass(frozen=True)
+class ConePlate:
+    """Cone-plate: radius (m), cone angle (rad), truncation gap at the flat tip (m)."""
+
+    radius: float
+    cone_angle: float
+    truncation: float = 0.0
+    kind: str = "cone_plate"
+
+    def torque(self, model: FlowModel, omega: float) -> float:
+        """Torque (N·m) at Ω (rad/s)."""
+        return cone_plate_torque(model, omega, self.radius, self.cone_angle, self.truncation)
+
+    def speed_for(self, rate: float) -> float:
+        """Ω (rad/s) giving the nominal shear rate ``rate`` (1/s): Ω = γ̇α."""
+        return rate * self.cone_angle
+
+    def apparent(self, omega: np.ndarray, torque: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The instrument's (γ̇ in 1/s, τ in Pa): γ̇ = Ω/α, τ = 3M/(2πR³)."""
+        return omega / self.cone_angle, 3.0 * torque / (2.0 * math.pi * self.radius**3)
+
+    def toml_items(self) -> list[tuple[str, str]]:
+        """study.toml entries (quantities as strings with units)."""
+        return [("radius", _mm(self.radius)),
+                ("cone_angle", f"{math.degrees(self.cone_angle):g} deg"),
+                ("truncation", f"{self.truncation * 1e6:g} um")]
+
+
+@dataclass(frozen=True)
+class ParallelPlate:
+    """Parallel plates: plate radius (m), gap (m)."""
+
+    radius: float
+    gap: float
+    kind: str = "parallel_plate"
+
+    def torque(self, model: FlowModel, omega: float) -> float:
+        """Torque (N·m) at Ω (rad/s)."""
+        return parallel_plate_torque(model, omega, self.radius, self.gap)
+
+    def speed_for(self, rate: float) -> float:
+        """Ω (rad/s) giving the rim shear rate ``rate`` (1/s): Ω = γ̇_R h/R."""
+        return rate * self.gap / self.radius
+
+    def apparent(self, omega: np.ndarray, torque: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The instrument's Newtonian rim values: γ̇_R = ΩR/h (1/s), τ_a = 2M/(πR³) (Pa)."""
+        return omega * self.radius / self.gap, 2.0 * torque / (math.pi * self.radius**3)
+
+    def toml_items(self) -> list[tuple[str, str]]:
+        """study.toml entries (quantities as strings with units)."""
+        return [("radius", _mm(self.radius)), ("gap", _mm(self.gap))]
+
+
+@dataclass(frozen=True)
+class ConcentricCylinder:
+    """Concentric cylinders, inner one turning: radii (m) and immersed length (m)."""
+
+    inner_radius: float
+    outer_radius: float
+    immersed_length: float
+    kind: str = "concentric_cylinder"
+
+    @property
+    def delta(self) -> float:
+        """Radius ratio δ = Ro/Ri (1)."""
+        return self.outer_radius / self.inner_radius
+
+    def torque(self, model: FlowModel, omega: float) -> float:
+        """Torque (N·m) at Ω (rad/s): M = 2πRi²Lτ_i."""
+        return couette_torque(model, omega, self)
+
+    def speed_for(self, rate: float) -> float:
+        """Ω (rad/s) giving the Newtonian inner-wall rate ``rate`` (1/s): Ω = γ̇(δ²−1)/(2δ²)."""
+        return rate * (self.delta**2 - 1.0) / (2.0 * self.delta**2)
+
+    def apparent(self, omega: np.ndarray, torque: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Newtonian inner-wall values: γ̇ = 2Ωδ²/(δ²−1) (1/s), τ_i = M/(2πRi²L) (Pa)."""
+        rate = 2.0 * omega * self.delta**2 / (self.delta**2 - 1.0)
+        return rate, torque / (2.0 * math.pi * self.inner_radius**2 * self.immersed_length)
+
+    def toml_items(self) -> list[tuple[str, str]]:
+        """study.toml entries (quantities as strings with units)."""
+        return [("inner_radius", _mm(self.inner_radius)), ("outer_radius", _mm(self.outer_radius)),
+                ("immersed_length", _mm(self.immersed_length)), ("rotating", "inner")]
+
+
+def couette_torque(model: FlowModel, omega: float, geometry: ConcentricCylinder) -> float:
+    """Torque (N·m) on the inner cylinder turning at Ω (rad/s): M = 2πRi²Lτ_i."""
+    tau_i = couette_inner_stress(model, omega, geometry.delta)
+    return 2.0 * math.pi * geometry.inner_radius**2 * geometry.immersed_length * tau_i
+
+
+Geometry = ConePlate | ParallelPlate | ConcentricCylinder
+
+GEOMETRIES: dict[str, Geometry] = {
+    "cone50-1deg": ConePlate(radius=25e-3, cone_angle=math.radians(1.0), truncation=50e-6),
+    "plate25": ParallelPlate(radius=12.5e-3, gap=1.0e-3),
+    "bob25-cup29": ConcentricCylinder(inner_radius=12.5e-3, outer_radius=14.5e-3,
+                                      immersed_length=37.5e-3),
+}
+
+
+def _mm(value: float) -> str:
+    """A length in m written in mm with at least one decimal, e.g. ``"1.0 mm"``."""
+    text = f"{value * 1e3:.4f}".rstrip("0")
+    return f"{text}0 mm" if text.endswith(".") else f"{text} mm"
+
+
+# ------------------------------------------------------------------------- scenario
+
+
+@dataclass(frozen=True)
+class Sample:
+    """A batch: product, model id, parameters at 20 °C (SI), temperature behaviour.
+
+    ``activation_energy`` (J/mol) shifts viscosity-like parameters and time constants with an
+    Arrhenius factor; ``yield_drop`` (1/K) lowers a yield stress linearly with temperature.
+    """
+
+    code: str
+    product: str
+    model: str
+    params: Mapping[str, float]
+    activation_energy: float
+    yield_drop: float = 0.0
+
+
+SAMPLES: dict[str, Sample] = {s.code: s for s in (
+    Sample("LT-2611", "Softmere body lotion", "carreau",
+           {"eta0": 45.0, "eta_inf": 0.015, "lam": 6.0, "n": 0.38}, 32e3),
+    Sample("LT-2612", "Softmere body lotion", "carreau",
+           {"eta0": 49.0, "eta_inf": 0.015, "lam": 6.6, "n": 0.37}, 32e3),
+    Sample("PT-2611", "Harbourline satin wall paint", "cross",
+           {"eta0": 9.5, "eta_inf": 0.06, "lam": 0.8, "m": 0.72}, 24e3),
+    Sample("ZB-2611", "Calmora zinc barrier ointment", "casson",
+           {"tau_y": 18.0, "eta_c": 0.9}, 28e3, 0.008),
+    Sample("RO-0926", "in-house check oil RO", "newtonian", {"eta": 0.0485}, 18e3),
+    Sample("HCB-2612", "hand-cream base", "herschel_bulkley",
+           {"tau_y": 32.0, "K": 8.5, "n": 0.44}, 20e3, 0.012),
+    Sample("JP-2612", "Tessel tile-joint paste", "bingham",
+           {"tau_y": 55.0, "eta_p": 1.6}, 22e3, 0.006),
+)}
+
+_SHIFTED = frozenset({"eta", "eta0", "eta_inf", "eta_p", "eta_c", "K", "lam"})
+
+
+def model_at(sample: Sample, temperature: float) -> FlowModel:
+    """The sample's model at ``temperature`` (°C), shifted from the 20 °C parameters."""
+    kelvin, reference = temperature + 273.15, REFERENCE_TEMPERATURE + 273.15
+    shift = math.exp(sample.activation_energy / GAS_CONSTANT * (1.0 / kelvin - 1.0 / reference))
+    drop = 1.0 - sample.yield_drop * (temperature - REFERENCE_TEMPERATURE)
+    params = {k: v * shift if k in _SHIFTED else v * drop if k == "tau_y" else v
+              for k, v in sample.params.items()}
+    return FlowModel(sample.model, params)
+
+
+@dataclass(frozen=True)
+class RunPlan:
+    """One run: sample, temperature (°C), geometry id, nominal shear rates (1/s), metadata."""
+
+    sample: str
+    temperature: float
+    geometry: str
+    rate_min: float
+    rate_max: float
+    points: int
+    operator: str
+    date: str
+    note: str
+    outlier_index: int | None = None
+
+
+@dataclass(frozen=True)
+class Column:
+    """A table column: quantity, header name, unit text, SI→unit factor and number format.
+
+    ``decimals`` fixes the decimals written (an instrument's resolution); otherwise ``sig``
+    significant digits are written.
+    """
+
+    quantity: str
+    name: str
+    unit: str
+    factor: float = 1.0
+    sig: int = 5
+    decimals: int | None = None
+
+
+@dataclass(frozen=True)
+class Dialect:
+    """How a file is written: encoding, delimiter, decimal mark, newline, metadata style."""
+
+    encoding: str  # "utf-8", "utf-8-sig", "cp1252" or "utf-16-bom"
+    delimiter: str
+    decimal: str
+    newline: str
+    meta_sep: str
+    brackets: str  # "[]" or "()"
+    title_keys: bool = False  # "Sample: …" instead of "sample: …"
+
+
+@dataclass(frozen=True)
+class ExportPlan:
+    """One export file: path in the study, dialect, columns, runs; raw or instrument-computed."""
+
+    path: str
+    dialect: Dialect
+    columns: tuple[Column, ...]
+    runs: tuple[RunPlan, ...]
+    raw: bool
+    instrument: str
+    broken: bool = False
+
+
+RPM = 60.0 / (2.0 * math.pi)  # rpm per rad/s
+_RIG_1 = "rotational rheometer MWF-RH-01 (lab asset)"
+_RIG_2 = "rotational rheometer MWF-RH-02 (lab asset)"
+_PRESHEAR = "pre-sheared 30 s then 120 s rest"
+
+_CP_COMPUTED = "computed by the instrument from cone 50 mm / 1 deg"
+
+EXPORTS: tuple[ExportPlan, ...] = (
+    ExportPlan(
+        "exports/2026-11/LT-2611_body-lotion.csv",
+        Dialect("utf-8", ",", ".", "\n", ":", "[]"),
+        (Column("shear_rate", "Shear rate", "1/s"), Column("shear_stress", "Shear stress", "Pa"),
+         Column("viscosity", "Viscosity", "Pa·s"), Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("LT-2611", 20.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-11-04",
+                 f"{_PRESHEAR}; {_CP_COMPUTED}", outlier_index=13),
+         RunPlan("LT-2611", 40.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-11-04",
+                 f"{_PRESHEAR}; {_CP_COMPUTED}")),
+        raw=False, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-11/PT-2611_satin-paint.csv",
+        Dialect("cp1252", ";", ",", "\r\n", ";", "[]", title_keys=True),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rpm", RPM, sig=4),
+         Column("torque", "Torque", "µN·m", 1e6, decimals=2),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("PT-2611", 20.0, "cone50-1deg", 0.1, 1000.0, 19, "R. Okafor-Lind", "2026-11-12",
+                 "stirred 10 min before loading"),
+         RunPlan("PT-2611", 40.0, "cone50-1deg", 0.1, 1000.0, 19, "R. Okafor-Lind", "2026-11-12",
+                 "stirred 10 min before loading")),
+        raw=True, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-11/ZB-2611_barrier-ointment.txt",
+        Dialect("utf-8", "\t", ".", "\n", "=", "()"),
+        (Column("shear_rate", "Rate", "1/s"), Column("shear_stress", "Stress", "Pa"),
+         Column("viscosity", "Viscosity", "Pa·s")),
+        (RunPlan("ZB-2611", 20.0, "cone50-1deg", 0.1, 500.0, 16, "T. Vesna", "2026-11-19",
+                 f"{_PRESHEAR}; {_CP_COMPUTED}"),),
+        raw=False, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/RO-0926_check-oil.csv",
+        Dialect("utf-8-sig", ",", ".", "\r\n", "=", "()", title_keys=True),
+        (Column("shear_rate", "Shear rate", "s⁻¹"), Column("viscosity", "Viscosity", "cP", 1e3),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        tuple(RunPlan("RO-0926", t, "cone50-1deg", 0.3, 1000.0, 18, "T. Vesna", "2026-12-01",
+                      f"weekly instrument check; {_CP_COMPUTED}") for t in (20.0, 25.0, 40.0)),
+        raw=False, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/LT-2612_body-lotion.csv",
+        Dialect("utf-8", ",", ".", "\n", ":", "[]"),
+        (Column("shear_rate", "Shear rate", "s⁻¹"), Column("viscosity", "Viscosity", "mPa·s", 1e3),
+         Column("shear_stress", "Shear stress", "Pa")),
+        (RunPlan("LT-2612", 20.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-12-03",
+                 f"{_PRESHEAR}; {_CP_COMPUTED}"),
+         RunPlan("LT-2612", 40.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-12-03",
+                 f"{_PRESHEAR}; {_CP_COMPUTED}")),
+        raw=False, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/line-b/HCB-2612_hand-cream-base.tsv",
+        Dialect("utf-16-bom", "\t", ".", "\r\n", ":", "[]", title_keys=True),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rpm", RPM, sig=4),
+         Column("torque", "Torque", "mN·m", 1e3, decimals=4),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("HCB-2612", 20.0, "bob25-cup29", 0.1, 400.0, 18, "R. Okafor-Lind", "2026-12-08",
+                 "cup filled to the mark; 5 min thermal rest"),
+         RunPlan("HCB-2612", 40.0, "bob25-cup29", 0.1, 400.0, 18, "R. Okafor-Lind", "2026-12-08",
+                 "cup filled to the mark; 5 min thermal rest")),
+        raw=True, instrument=_RIG_2),
+    ExportPlan(
+        "exports/2026-12/line-b/JP-2612_joint-paste.csv",
+        Dialect("utf-8", ";", ".", "\n", "=", "()"),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rad/s", sig=4),
+         Column("torque", "Torque", "mN·m", 1e3, decimals=4),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("JP-2612", 20.0, "plate25", 0.1, 300.0, 16, "T. Vesna", "2026-12-10",
+                 "serrated plates - edge trimmed after loading"),
+         RunPlan("JP-2612", 40.0, "plate25", 0.1, 300.0, 16, "T. Vesna", "2026-12-10",
+                 "serrated plates - edge trimmed after loading")),
+        raw=True, instrument=_RIG_2),
+    ExportPlan(
+        "exports/2026-12/line-b/recheck/LT-2612_body-lotion_40C_BROKEN-truncated-export.csv",
+        Dialect("utf-8", ",", ".", "\n", ":", "[]"),
+        (Column("shear_rate", "Shear rate", "1/s"), Column("shear_stress", "Shear stress", "Pa"),
+         Column("viscosity", "Viscosity", "mPa·s", 1e3)),
+        (RunPlan("LT-2612", 40.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-12-15",
+                 "repeat run; transfer to the lab share was interrupted"),),
+        raw=False, instrument=_RIG_1, broken=True),
+)
+
+_BROKEN_ROW = 8  # data row replaced by instrument error cells in the broken export
+_BROKEN_KEEP = 12  # complete data rows kept before the file is cut off mid-row
+
+
+# ----------------------------------------------------------------------- simulation
+
+
+def _round_sig(value: float, sig: int) -> float:
+    """``value`` rounded to ``sig`` significant digits (as it is written)."""
+    return float(_format_sig(value, sig))
+
+
+def _format_sig(value: float, sig: int) -> str:
+    """``value`` with ``sig`` significant digits, never in exponent notation."""
+    if value == 0.0 or not math.isfinite(value):
+        return f"{value:.{sig - 1}f}"
+    decimals = max(sig - 1 - math.floor(math.log10(abs(value))), 0)
+    return f"{value:.{decimals}f}"
+
+
+def _speeds(plan: RunPlan, export: ExportPlan) -> np.ndarray:
+    """Angular velocities (rad/s) of the run's steps, log-spaced in nominal shear rate.
+
+    Raw exports write the set-point with the speed column's precision; the written value is
+    the true one, so the file and the simulation agree exactly.
+    """
+    geometry = GEOMETRIES[plan.geometry]
+    rates = np.geomspace(plan.rate_min, plan.rate_max, plan.points)
+    omega = np.array([geometry.speed_for(float(r)) for r in rates])
+    speed = next((c for c in export.columns if c.quantity == "angular_velocity"), None)
+    if speed is None:
+        return omega
+    return np.array([_round_sig(w * speed.factor, speed.sig) / speed.factor for w in omega])
+
+
+def _noisy_torque(true: np.ndarray, rng: np.random.Generator, outlier: int | None) -> np.ndarray:
+    """Measured torque (N·m): relative noise, additive noise at the resolution floor, outlier."""
+    relative = rng.standard_normal(true.size)
+    floor = rng.standard_normal(true.size)
+    measured = true * (1.0 + REL_NOISE * relative) + TORQUE_FLOOR * floor
+    if outlier is not None:
+        measured[outlier] *= OUTLIER_FACTOR
+    return measured
+
+
+def _step_times(omega: np.ndarray, geometry: Geometry) -> np.ndarray:
+    """Elapsed time (s) at the end of each step: longer steps at low shear rates."""
+    rates, _ = geometry.apparent(omega, np.zeros_like(omega))
+    return np.cumsum(8.0 + 30.0 / (1.0 + rates))
+
+
+def simulate_run(plan: RunPlan, export: ExportPlan, seed: Any) -> dict[str, np.ndarray]:
+    """One run's point columns in SI units (time s, angular_velocity rad/s, torque N·m,
+    temperature °C, shear_rate 1/s, shear_stress Pa, viscosity Pa·s) as the instrument
+    records them; ``seed`` feeds ``numpy.random.default_rng``.
+    """
+    rng = np.random.default_rng(seed)
+    geometry = GEOMETRIES[plan.geometry]
+    model = model_at(SAMPLES[plan.sample], plan.temperature)
+    omega = _speeds(plan, export)
+    true = np.array([geometry.torque(model, float(w)) for w in omega])
+    torque = _noisy_torque(true, rng, plan.outlier_index)
+    rate, stress = geometry.apparent(omega, torque)
+    temperature = plan.temperature + 0.03 * rng.standard_normal(omega.size)
+    return {"time": _step_times(omega, geometry), "angular_velocity": omega, "torque": torque,
+            "temperature": temperature, "shear_rate": rate, "shear_stress": stress,
+            "viscosity": stress / rate}
+
+
+# -------------------------------------------------------------------------- writing
+
+
+def _format_value(value: float, column: Column, decimal: str) -> str:
+    """A value (SI) written in the column's unit and precision with the file's decimal mark."""
+    scaled = value * column.factor
+    text = f"{scaled:.{column.decimals}f}" if column.decimals is not None else _format_sig(scaled, column.sig)
+    return text.replace(".", decimal)
+
+
+def _header(export: ExportPlan) -> str:
+    """The header row: names with units in the file's brackets."""
+    left, right = export.dialect.brackets
+    return export.dialect.delimiter.join(f"{c.name} {left}{c.unit}{right}" for c in export.columns)
+
+
+def _metadata_lines(plan: RunPlan, export: ExportPlan) -> list[str]:
+    """The run's ``key<sep>value`` block (geometry only in raw exports, whose ids are in study.toml)."""
+    sample = SAMPLES[plan.sample]
+    items = [("sample", plan.sample), ("product", sample.product)]
+    if export.raw:
+        items.append(("geometry", plan.geometry))
+    items += [("temperature", f"{plan.temperature:g} °C"), ("operator", plan.operator),
+              ("date", plan.date), ("instrument", export.instrument), ("note", plan.note)]
+    if any(export.dialect.delimiter in v for _, v in items):
+        raise ValueError(f"{export.path}: a metadata value contains the table delimiter")
+    sep = export.dialect.meta_sep
+    glue = f" {sep} " if sep == "=" else f"{sep} "
+    return [f"{k.title() if export.dialect.title_keys else k}{glue}{v}" for k, v in items]
+
+
+def _rows(columns: Mapping[str, np.ndarray], export: ExportPlan) -> list[str]:
+    """The data rows of one run."""
+    d = export.dialect
+    n = len(columns["shear_rate"])
+    return [d.delimiter.join(_format_value(float(columns[c.quantity][i]), c, d.decimal)
+                             for c in export.columns) for i in range(n)]
+
+
+def _break(rows: list[str], export: ExportPlan) -> list[str]:
+    """Damage a table the way an interrupted transfer does: error cells, then a cut row."""
+    d = export.dialect
+    cells = rows[_BROKEN_ROW].split(d.delimiter)
+    rows = list(rows)
+    rows[_BROKEN_ROW] = d.delimiter.join([cells[0]] + ["#ERR"] * (len(cells) - 1))
+    cut = rows[_BROKEN_KEEP]
+    return rows[:_BROKEN_KEEP] + [cut[: cut.index(d.delimiter) + 3]]
+
+
+def _run_seed(file_index: int, run_index: int) -> list[int]:
+    """Seed of one run: fixed, and independent of the other runs."""
+    return [DEMO_SEED, file_index, run_index]
+
+
+def render_export(file_index: int, export: ExportPlan) -> bytes:
+    """The bytes of one export file (all its runs, dialect applied)."""
+    lines: list[str] = []
+    for run_index, plan in enumerate(export.runs):
+        columns = simulate_run(plan, export, _run_seed(file_index, run_index))
+        rows = _rows(columns, export)
+        if run_index:
+            lines.append("")
+        lines += _metadata_lines(plan, export) + [_header(export)]
+        lines += _break(rows, export) if export.broken else rows
+    newline = export.dialect.newline
+    text = newline.join(lines) + ("" if export.broken else newline)
+    return _encode(text, export.dialect.encoding)
+
+
+def _encode(text: str, encoding: str) -> bytes:
+    """Encode with an explicit byte-order mark where the dialect has one."""
+    if encoding == "utf-16-bom":
+        return b"\xff\xfe" + text.encode("utf-16-le")
+    if encoding == "utf-8-sig":
+        return b"\xef\xbb\xbf" + text.encode("utf-8")
+    return text.encode(encoding)
+
+
+def study_toml() -> str:
+    """The demo's study.toml (quantities as strings with units)."""
+    lines = [
+        "# gammadot demo study. Merrowind Formulations Ltd and all its products are fictitious.",
+        "",
+        "[study]",
+        'title = "Merrowind QC lab: flow curves of November and December 2026 batches (demo)"',
+        'description = "Fictitious demo data generated from models by gammadot. Lotion, paint, '
+        'ointment, hand-cream base, tile-joint paste and a check oil at 20, 25 and 40 °C."',
+    ]
+    for gid, geometry in GEOMETRIES.items():
+        lines += ["", f"[geometries.{gid}]", f'type = "{geometry.kind}"']
+        lines += [f'{k} = "{v}"' for k, v in geometry.toml_items()]
+        if geometry.kind == "cone_plate":
+            lines[-1] += "   # gap at the flattened cone tip"
+    lines += ["", "[fit]", 'models = ["newtonian", "power_law"]', ""]
+    return "\n".join(lines)
+
+
+def readme_text() -> str:
+    """The study folder's README.txt: the fictitious scenario and what the files show."""
+    products = "\n".join(f"  {s.code:<9} {s.product} ({s.model.replace('_', '-')}-like)"
+                         for s in SAMPLES.values())
+    files = "\n".join(f"  {e.path}  ({len(e.runs)} run{'s' * (len(e.runs) > 1)}, "
+                      f"{'torque and speed' if e.raw else 'instrument-computed'})" for e in EXPORTS)
+    return README_TEMPLATE.format(products=products, files=files)
+
+
+README_TEMPLATE = """\
+gammadot demo study -- FICTITIOUS DATA
+======================================
+
+Everything in this folder is invented. Merrowind Formulations Ltd, its Kestle Bridge
+plant, its products, batches, operators and instruments do not exist; the numbers were
+generated by gammadot from rheological models with simulated noise. Do not use them for
+any real product, process or decision.
+
+The story: the QC lab of Merrowind, a maker of personal-care products and decorative
+coatings, measures a flow curve of each production batch on two rotational rheometers
+and files the exports by month and production line.
+
+Batches:
+{products}
+
+Exports (any sub-folder depth is read):
+{files}
+
+Raw exports (torque and speed) name a geometry defined in study.toml; the other exports
+hold the shear rate, stress and viscosity the instrument computed itself.
+
+Deliberate artefacts, so that the checks have something to find:
+  - about 1.5 % noise on every torque, and extra noise near the torque resolution floor
+    (about 0.08 uN.m; see the check oil at low shear rates);
+  - one clear outlier (an air bubble) in LT-2611 at 20 C;
+  - one export cut short by an interrupted transfer (file name says BROKEN); it must be
+    rejected while the rest of the study is processed.
+"""
+
+
+def write_demo_study(target: Path) -> Path:
+    """Write the demo study folder into ``target`` and return it.
+
+    Creates ``target`` if needed; writes study.toml, README.txt and the exports, overwriting
+    only these files and leaving anything else in the folder alone.
+    """
+    target = Path(target)
+    target.mkdir(parents=True, exist_ok=True)
+    files = {"study.toml": study_toml().encode("utf-8"), "README.txt": readme_text().encode("utf-8")}
+    files |= {e.path: render_export(i, e) for i, e in enumerate(EXPORTS)}
+    for relative, content in files.items():
+        path = target / relative
+        path.parent.mkdir(parents=True, exist_ok=True)
+        path.write_bytes(content)
+    return target
+
+
+# --------------------------------------------------------------------------- truth
+
+
+def _run_truth(index: int, plan: RunPlan, export: ExportPlan) -> dict[str, Any]:
+    """What generated one run: model, parameters (SI), geometry, artefacts."""
+    geometry = GEOMETRIES[plan.geometry]
+    model = model_at(SAMPLES[plan.sample], plan.temperature)
+    return {
+        "index": index, "sample": plan.sample, "product": SAMPLES[plan.sample].product,
+        "temperature": plan.temperature, "model": model.name, "params": dict(model.params),
+        "geometry": plan.geometry, "geometry_type": geometry.kind,
+        "geometry_in_file": export.raw, "export": "raw" if export.raw else "computed",
+        "n_points": plan.points, "nominal_shear_rate": (plan.rate_min, plan.rate_max),
+        "outlier_index": plan.outlier_index, "relative_noise": REL_NOISE,
+        "torque_floor": TORQUE_FLOOR,
+    }
+
+
+def demo_truth() -> dict[str, dict[str, Any]]:
+    """Per written export (path relative to the study, POSIX style): its dialect, whether the
+    importer must reject it, and per run (in file order) the generating model and parameters
+    in SI units (Pa, Pa·s, Pa·sⁿ, s), temperature in °C, the geometry id and the artefacts.
+    """
+    return {
+        e.path: {
+            "encoding": e.dialect.encoding, "delimiter": e.dialect.delimiter,
+            "decimal": e.dialect.decimal, "metadata_separator": e.dialect.meta_sep,
+            "rejected": e.broken,
+            "columns": [(c.quantity, c.name, c.unit) for c in e.columns],
+            "runs": [_run_truth(i, plan, e) for i, plan in enumerate(e.runs)],
+        }
+        for e in EXPORTS
+    }

@@ -1,0 +1,113 @@
+"""The study pipeline: discover → import → convert → check → fit → write.
+
+:func:`process_study` does the computation and returns a :class:`StudyResult` (no output
+files); :func:`write_outputs` hands it to every writer plugin. One bad file or one raising
+plugin is recorded and never stops the other files.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Callable, Protocol
+
+from .config import StudyConfig, load_study_config
+from .discovery import find_input_files
+from .importing import FileOutcome, RejectedFile, import_file
+from .processing import RunResult, process_run
+from .registry import Registry
+
+DEFAULT_OUT = "_gammadot"
+
+
+class Progress(Protocol):
+    """Receives progress: ``start(total)`` once, then ``advance(label)`` per file."""
+
+    def start(self, total: int) -> None: ...
+
+    def advance(self, label: str) -> None: ...
+
+
+class _NoProgress:
+    def start(self, total: int) -> None:
+        pass
+
+    def advance(self, label: str) -> None:
+        pass
+
+
+@dataclass(frozen=True)
+class WriterFailure:
+    """A writer plugin that raised: which one and why."""
+
+    writer: str
+    plugin: str
+    message: str
+
+
+@dataclass
+class StudyResult:
+    """Everything a writer needs: the config, the processed runs, the files and rejections."""
+
+    study_dir: Path
+    config: StudyConfig
+    registry: Registry
+    files: list[FileOutcome] = field(default_factory=list)
+    runs: list[RunResult] = field(default_factory=list)
+    writer_failures: list[WriterFailure] = field(default_factory=list)
+    written: list[Path] = field(default_factory=list)
+
+    @property
+    def rejected(self) -> list[RejectedFile]:
+        """Files that could not be used, in file order."""
+        return [f.rejected for f in self.files if f.rejected is not None]
+
+
+def default_out_dir(study_dir: Path) -> Path:
+    """``STUDY/_gammadot``: the output folder when ``--out`` is not given."""
+    return study_dir / DEFAULT_OUT
+
+
+def process_study(study_dir: Path, registry: Registry, *, out_dir: Path | None = None,
+                  progress: Progress | None = None) -> StudyResult:
+    """Import and process every export below ``study_dir``; raises only for a bad study.toml."""
+    progress = progress or _NoProgress()
+    config = load_study_config(study_dir, registry)
+    suffixes = [s for p in registry.importers.values() for s in p.record.suffixes]
+    paths = find_input_files(study_dir, out_dir or default_out_dir(study_dir), suffixes)
+    result = StudyResult(study_dir=study_dir, config=config, registry=registry)
+    progress.start(len(paths))
+    for path in paths:
+        rel = path.relative_to(study_dir).as_posix()
+        outcome = import_file(path, rel, registry, config)
+        result.files.append(outcome)
+        result.runs.extend(process_run(run, config, registry) for run in outcome.runs)
+        progress.advance(rel)
+    _dedupe_run_ids(result.runs)
+    return result
+
+
+def _dedupe_run_ids(runs: list[RunResult]) -> None:
+    """Two paths can slug alike ("a b.csv", "a-b.csv"): number repeats, keeping file order."""
+    seen: dict[str, int] = {}
+    for result in runs:
+        run_id = result.run.run_id
+        seen[run_id] = seen.get(run_id, 0) + 1
+        if seen[run_id] > 1:
+            result.run.run_id = f"{run_id}-{seen[run_id]}"
+
+
+def write_outputs(result: StudyResult, out_dir: Path,
+                  on_failure: Callable[[WriterFailure], None] | None = None) -> StudyResult:
+    """Call every writer in ``order``; a raising writer is recorded and the others still run."""
+    out_dir.mkdir(parents=True, exist_ok=True)
+    writers = sorted(result.registry.writers.values(), key=lambda p: (p.record.order, p.record.id))
+    for provided in writers:
+        try:
+            result.written.extend(provided.record.write(result, out_dir))
+        except Exception as exc:
+            failure = WriterFailure(provided.record.id, provided.plugin, f"{type(exc).__name__}: {exc}")
+            result.writer_failures.append(failure)
+            if on_failure:
+                on_failure(failure)
+    return result

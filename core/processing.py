@@ -1,0 +1,151 @@
+"""Processing one run: geometry conversion, checks, model fits. Pure computation, no files.
+
+Every plugin call is wrapped: a geometry, check or model that raises becomes a finding (or
+a failed fit) naming the plugin, and the run and the study go on.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from .config import GeometryConfig, StudyConfig
+from .datamodel import Run
+from .fitting import FitResult, failed_fit, fit_model, select_model
+from .records import CheckContext, Conversion, Finding
+from .registry import Provided, Registry
+
+PASS_THROUGH = "instrument"
+
+
+@dataclass
+class RunResult:
+    """A processed run: the run (columns now include stress and rate), findings and fits."""
+
+    run: Run
+    geometry_id: str | None
+    geometry_type: str | None
+    correction: str | None
+    excluded: np.ndarray
+    flags: list[list[str]]
+    findings: list[Finding] = field(default_factory=list)
+    fits: list[FitResult] = field(default_factory=list)
+
+    @property
+    def selected(self) -> FitResult | None:
+        """The selected model's fit, if any model could be fitted."""
+        return next((f for f in self.fits if f.selected), None)
+
+
+def resolve_geometry(run: Run, config: StudyConfig) -> tuple[GeometryConfig | None, list[Finding]]:
+    """The run's geometry: named in its metadata (its values win), or the study's only one."""
+    notes: list[Finding] = []
+    name = run.metadata.get("geometry")
+    has_raw = "torque" in run.columns and "angular_velocity" in run.columns
+    if name is not None and str(name) in config.geometries:
+        return config.geometries[str(name)].with_overrides(run.metadata), notes
+    if name is None and has_raw and len(config.geometries) == 1:
+        only = next(iter(config.geometries.values()))
+        notes.append(Finding("geometry.assumed", "info",
+                             f"the run names no geometry; the study's only geometry '{only.id}' is used"))
+        return only.with_overrides(run.metadata), notes
+    if name is not None:
+        notes.append(Finding("geometry.unknown", "warning",
+                             f"geometry '{name}' is not defined in study.toml"))
+    return None, notes
+
+
+def convert(run: Run, config: StudyConfig, registry: Registry) -> tuple[Conversion | None, str | None, list[Finding]]:
+    """Apply the run's geometry, falling back to the instrument's own values."""
+    geometry, notes = resolve_geometry(run, config)
+    attempts: list[tuple[Provided, GeometryConfig | None]] = []
+    if geometry is not None and geometry.type in registry.geometries:
+        attempts.append((registry.geometries[geometry.type], geometry))
+    if PASS_THROUGH in registry.geometries:
+        attempts.append((registry.geometries[PASS_THROUGH], None))
+    for provided, geo in attempts:
+        try:
+            result = provided.record.convert(run, geo)
+        except Exception as exc:  # a geometry plugin's failure is recorded on the run
+            notes.append(Finding("geometry.failed", "error",
+                                 f"geometry plugin '{provided.plugin}' ({provided.record.id}) failed: "
+                                 f"{type(exc).__name__}: {exc}"))
+            continue
+        if result is not None:
+            return result, (geo.id if geo else None), notes + list(result.notes)
+    notes.append(Finding("geometry.none", "error",
+                         "no shear rate and shear stress could be obtained: the run needs instrument "
+                         "shear rate with stress or viscosity, or torque and speed with a geometry"))
+    return None, None, notes
+
+
+def _apply_conversion(run: Run, conversion: Conversion) -> None:
+    columns = run.columns
+    columns["shear_rate_apparent"] = conversion.shear_rate_apparent
+    columns["shear_stress_apparent"] = conversion.shear_stress_apparent
+    columns["shear_rate"] = conversion.shear_rate
+    columns["shear_stress"] = conversion.shear_stress
+    with np.errstate(divide="ignore", invalid="ignore"):
+        columns["viscosity"] = conversion.shear_stress / conversion.shear_rate
+    columns.update(conversion.extra_columns)
+
+
+def run_checks(run: Run, config: StudyConfig, registry: Registry) -> list[Finding]:
+    """All enabled checks on a converted run; a raising check becomes an error finding."""
+    findings: list[Finding] = []
+    for check_id, provided in registry.checks.items():
+        settings = config.checks.get(check_id, {})
+        if settings.get("enabled", True) is False:
+            continue
+        try:
+            found = list(provided.record.run(run, CheckContext(study=config, settings=settings)))
+        except Exception as exc:
+            findings.append(Finding(check_id, "error", f"check plugin '{provided.plugin}' failed: "
+                                                       f"{type(exc).__name__}: {exc}"))
+            continue
+        keep_in_fit = settings.get("exclude", True) is False
+        findings.extend(Finding(f.check, f.severity, f.message, f.point_index, f.exclude and not keep_in_fit)
+                        for f in found)
+    return findings
+
+
+def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
+    """Fit every selected model to the run's included points and mark the selected one."""
+    model_ids = config.fit.models or tuple(registry.models)
+    rate = run.columns.get("shear_rate")
+    fits = []
+    for model_id in model_ids:
+        provided = registry.models[model_id]
+        model = provided.record
+        if rate is None:
+            fits.append(failed_fit(model, 0, "no shear rate"))
+            continue
+        target = run.columns.get(model.target)
+        try:
+            fits.append(fit_model(model, rate[~excluded], target[~excluded]))
+        except Exception as exc:
+            fits.append(failed_fit(model, int((~excluded).sum()),
+                                   f"model plugin '{provided.plugin}' failed: {type(exc).__name__}: {exc}"))
+    return select_model(fits, {m: len(registry.models[m].record.parameters) for m in model_ids})
+
+
+def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
+    """Convert, check and fit one run."""
+    conversion, geometry_id, findings = convert(run, config, registry)
+    geometry_type = config.geometries[geometry_id].type if geometry_id else (PASS_THROUGH if conversion else None)
+    n = run.n_points
+    excluded = np.zeros(n, dtype=bool)
+    flags: list[list[str]] = [[] for _ in range(n)]
+    result = RunResult(run, geometry_id, geometry_type, conversion.correction if conversion else None,
+                       excluded, flags, findings=list(run.findings) + findings)
+    if conversion is None:
+        return result
+    _apply_conversion(run, conversion)
+    for finding in run_checks(run, config, registry):
+        result.findings.append(finding)
+        if finding.point_index is not None and 0 <= finding.point_index < n:
+            flags[finding.point_index].append(finding.check)
+            excluded[finding.point_index] |= finding.exclude
+    result.fits = fit_run(run, excluded, config, registry)
+    return result

@@ -1,0 +1,225 @@
+"""Frozen records that plugins hand to the core through the catalogue hooks.
+
+Every built-in importer, geometry, model, check and writer is described by one of these
+records, exactly as a third party's would be. The core collects them at start-up
+(:mod:`gammadot.registry`), rejects duplicate ids and calls the functions they carry.
+
+All physical values crossing these interfaces are in SI units (temperature in °C):
+shear rate 1/s, shear stress Pa, viscosity Pa·s, torque N·m, angular velocity rad/s,
+normal force N, time s, lengths m, angles rad.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import TYPE_CHECKING, Any, Callable, Literal, Mapping, Sequence
+
+if TYPE_CHECKING:  # numpy stays out of start-up time
+    import numpy as np
+
+    from .datamodel import Run
+    from .config import GeometryConfig, StudyConfig
+
+Severity = Literal["info", "warning", "error"]
+SEVERITIES: tuple[str, ...] = ("info", "warning", "error")
+
+
+class ImportRejection(Exception):
+    """Raised by an importer when a file cannot be read.
+
+    ``line`` is the 1-based line (or row) where the problem was found, ``None`` when the
+    problem concerns the whole file. The message is one sentence a lab analyst can act on.
+    """
+
+    def __init__(self, reason: str, line: int | None = None) -> None:
+        super().__init__(reason)
+        self.reason = reason
+        self.line = line
+
+
+@dataclass(frozen=True)
+class RawColumn:
+    """One column of an instrument table as the file states it, before meaning is resolved.
+
+    ``name`` is the header text without its unit, ``unit`` the text found in ``[...]`` or
+    ``(...)`` (``None`` when the header has none), ``values`` the numbers as written (float64).
+    """
+
+    name: str
+    unit: str | None
+    values: "np.ndarray"
+
+
+@dataclass(frozen=True)
+class RawRun:
+    """One run as an importer found it: metadata text and columns, nothing interpreted yet.
+
+    ``metadata`` maps the key as written to the value text (``"Temperature" -> "25 °C"``).
+    ``first_line`` / ``header_line`` are 1-based line numbers in the source file (the core
+    uses them in messages); ``data_first_line`` is the line of the first data row.
+    """
+
+    metadata: Mapping[str, str]
+    columns: Sequence[RawColumn]
+    first_line: int
+    header_line: int
+    data_first_line: int
+
+
+@dataclass(frozen=True)
+class ImportContext:
+    """What an importer may use besides the file: the study's column-name map."""
+
+    column_map: Mapping[str, str] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Importer:
+    """An importer: says how confident it is that it reads a file, then reads it.
+
+    - ``sniff(path, head)`` gets the file's first 64 KiB and returns a confidence in
+      ``[0, 1]``; 0 means "not mine". The importer with the highest confidence reads the file.
+    - ``read(path, context)`` returns the file's runs as :class:`RawRun` records, or raises
+      :class:`ImportRejection` naming the line and the problem.
+    """
+
+    id: str
+    title: str
+    sniff: Callable[[Path, bytes], float]
+    read: Callable[[Path, ImportContext], Sequence[RawRun]]
+    suffixes: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Conversion:
+    """A geometry's result for one run, arrays of one value per point, SI units.
+
+    ``shear_rate``/``shear_stress`` are the corrected (true) values; the ``*_apparent``
+    arrays are what the Newtonian/narrow-gap formulas (or the instrument) give.
+    ``correction`` names the correction applied (``"none"`` for a pass-through) and
+    ``notes`` are run-level findings to record (check id, severity, message).
+    """
+
+    shear_rate: "np.ndarray"
+    shear_stress: "np.ndarray"
+    shear_rate_apparent: "np.ndarray"
+    shear_stress_apparent: "np.ndarray"
+    correction: str = "none"
+    notes: tuple["Finding", ...] = ()
+    extra_columns: Mapping[str, "np.ndarray"] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class GeometryParameter:
+    """A value a geometry needs from ``study.toml`` (or the run metadata, which wins).
+
+    ``dimension`` is a key of :data:`gammadot.units.DIMENSIONS` (``"length"``, ``"angle"``,
+    ``"dimensionless"``...) for a quantity written with its unit, or ``"text"`` for a word
+    from ``choices``. ``default`` (SI, or a choice) is used when the key is absent; with no
+    default and ``required=True`` the key is mandatory.
+    """
+
+    name: str
+    dimension: str
+    required: bool = True
+    default: float | str | None = None
+    description: str = ""
+    choices: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class GeometryType:
+    """A measuring geometry: turns a run's raw or instrument values into stress and rate.
+
+    ``convert(run, geometry)`` returns a :class:`Conversion` or ``None`` when the run
+    lacks what this geometry needs; ``geometry`` is ``None`` for a run with no geometry.
+    """
+
+    id: str
+    title: str
+    parameters: tuple[GeometryParameter, ...]
+    convert: Callable[["Run", "GeometryConfig | None"], Conversion | None]
+
+
+@dataclass(frozen=True)
+class ModelParameter:
+    """A model parameter: contract name, SI unit, bounds and a one-line meaning."""
+
+    name: str
+    unit: str
+    min: float = float("-inf")
+    max: float = float("inf")
+    description: str = ""
+
+
+@dataclass(frozen=True)
+class Model:
+    """A constitutive model of steady shear.
+
+    ``function(shear_rate, **params)`` returns the model's ``target`` quantity
+    (``"viscosity"`` in Pa·s or ``"shear_stress"`` in Pa) at ``shear_rate`` (1/s);
+    its keyword names are the parameter names. ``guess(shear_rate, target_values)``
+    returns starting values from the data, so no user guess is needed.
+    ``equation`` is the model's form in plain text for reports.
+    """
+
+    id: str
+    title: str
+    target: Literal["viscosity", "shear_stress"]
+    parameters: tuple[ModelParameter, ...]
+    function: Callable[..., "np.ndarray"]
+    guess: Callable[["np.ndarray", "np.ndarray"], dict[str, float]]
+    equation: str = ""
+    reference: str = ""
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One result of a check: for a point (``point_index``) or for the run (``None``).
+
+    ``exclude`` marks the point as kept out of fits (it stays in the tables).
+    """
+
+    check: str
+    severity: Severity
+    message: str
+    point_index: int | None = None
+    exclude: bool = False
+
+
+@dataclass(frozen=True)
+class CheckContext:
+    """What a check may read besides the run: the study config and its own settings."""
+
+    study: "StudyConfig"
+    settings: Mapping[str, Any] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Check:
+    """A data-quality check run on each converted run.
+
+    ``run(run, context)`` returns findings; a point finding with ``exclude=True`` keeps the
+    point out of fits. ``reference`` cites the physics or practice behind the check.
+    """
+
+    id: str
+    title: str
+    severity: Severity
+    run: Callable[["Run", CheckContext], Sequence[Finding]]
+    reference: str = ""
+
+
+@dataclass(frozen=True)
+class Writer:
+    """An output writer: ``write(result, out_dir)`` writes files below ``out_dir``.
+
+    Writers run in ascending ``order`` (tables before the site that links to them) and must
+    write atomically (temporary file, then rename), never touching input files.
+    """
+
+    id: str
+    title: str
+    write: Callable[[Any, Path], Sequence[Path]]
+    order: int = 100

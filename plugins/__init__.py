@@ -1,0 +1,15 @@
+"""gammadot's built-in plugins, registered exactly as a third party's would be.
+
+Each entry is (plugin name, module). The name is what users block with
+``--block NAME`` or ``GAMMADOT_BLOCK_PLUGINS``; the module carries ``@hookimpl`` functions.
+"""
+
+BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
+    ("delimited_text", "gammadot.plugins.delimited_text"),
+    ("instrument_geometry", "gammadot.plugins.instrument_geometry"),
+    ("rotational_geometries", "gammadot.plugins.rotational_geometries"),
+    ("basic_models", "gammadot.plugins.basic_models"),
+    ("basic_checks", "gammadot.plugins.basic_checks"),
+    ("parquet_tables", "gammadot.plugins.parquet_tables"),
+    ("study_site", "gammadot.plugins.study_site"),
+)
