@@ -6,6 +6,9 @@ Importing this package is cheap; numpy, pint, lmfit and pyarrow load only when w
 
 from .hookspecs import hookimpl
 from .records import (
+    Analysis,
+    AnalysisOutput,
+    AnalysisTable,
     Check,
     CheckContext,
     Conversion,
@@ -19,12 +22,16 @@ from .records import (
     ModelParameter,
     RawColumn,
     RawRun,
+    Result,
     Writer,
 )
 
 __version__ = "0.1.0"
 
 __all__ = [
+    "Analysis",
+    "AnalysisOutput",
+    "AnalysisTable",
     "Check",
     "CheckContext",
     "Conversion",
@@ -38,6 +45,7 @@ __all__ = [
     "ModelParameter",
     "RawColumn",
     "RawRun",
+    "Result",
     "Writer",
     "__version__",
     "hookimpl",

@@ -117,6 +117,8 @@ def _count(n: int, noun: str) -> str:
 def _report(result: "StudyResult", out_dir: Path, quiet: bool) -> None:
     for rejected in result.rejected:
         click.echo(f"rejected {rejected.describe()}", err=True)
+    for failure in result.analysis_failures:
+        click.echo(f"analysis '{failure.writer}' (plugin {failure.plugin}) failed: {failure.message}", err=True)
     n_files = len(result.files)
     ok_runs = sum(1 for r in result.runs if r.selected is not None)
     if not quiet:

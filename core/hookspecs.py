@@ -24,7 +24,7 @@ from typing import Sequence
 
 import pluggy
 
-from .records import Check, GeometryType, Importer, Model, Writer
+from .records import Analysis, Check, GeometryType, Importer, Model, Writer
 
 PROJECT_NAME = "gammadot"
 
@@ -79,6 +79,18 @@ def gammadot_checks() -> Sequence[Check]:
     fitting; its point findings with ``exclude=True`` keep points out of fits (they stay in
     points.parquet with the check id in ``flags``). ``study.toml`` ``[checks.<id>]`` can turn
     a check off (``enabled = false``) or keep its points in the fit (``exclude = false``).
+    """
+
+
+@hookspec
+def gammadot_analyses() -> Sequence[Analysis]:
+    """Return the study-level analyses this plugin provides.
+
+    Called once at start-up. After every run of a study was converted, checked and fitted,
+    each analysis's ``run(result)`` is called once with the
+    :class:`~gammadot.pipeline.StudyResult`; it returns an
+    :class:`~gammadot.records.AnalysisOutput` (extra tables, findings per run id) or ``None``
+    when the study has nothing for it. A raising analysis is recorded and the others go on.
     """
 
 

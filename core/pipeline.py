@@ -15,6 +15,7 @@ from .config import StudyConfig, load_study_config
 from .discovery import find_input_files
 from .importing import FileOutcome, RejectedFile, import_file
 from .processing import RunResult, process_run
+from .records import AnalysisOutput, Finding
 from .registry import Registry
 
 DEFAULT_OUT = "_gammadot"
@@ -38,7 +39,7 @@ class _NoProgress:
 
 @dataclass(frozen=True)
 class WriterFailure:
-    """A writer plugin that raised: which one and why."""
+    """A writer or analysis plugin that raised: which one and why."""
 
     writer: str
     plugin: str
@@ -54,6 +55,8 @@ class StudyResult:
     registry: Registry
     files: list[FileOutcome] = field(default_factory=list)
     runs: list[RunResult] = field(default_factory=list)
+    analyses: dict[str, AnalysisOutput] = field(default_factory=dict)
+    analysis_failures: list[WriterFailure] = field(default_factory=list)
     writer_failures: list[WriterFailure] = field(default_factory=list)
     written: list[Path] = field(default_factory=list)
 
@@ -84,7 +87,30 @@ def process_study(study_dir: Path, registry: Registry, *, out_dir: Path | None =
         result.runs.extend(process_run(run, config, registry) for run in outcome.runs)
         progress.advance(rel)
     _dedupe_run_ids(result.runs)
+    run_analyses(result)
     return result
+
+
+def run_analyses(result: StudyResult) -> None:
+    """Run every study-level analysis; attach its findings to the runs they name."""
+    by_id = {r.run.run_id: r for r in result.runs}
+    for analysis_id, provided in result.registry.analyses.items():
+        try:
+            output = provided.record.run(result)
+        except Exception as exc:  # one analysis failing never stops the study
+            result.analysis_failures.append(WriterFailure(analysis_id, provided.plugin,
+                                                          f"{type(exc).__name__}: {exc}"))
+            continue
+        if output is None:
+            continue
+        result.analyses[analysis_id] = output
+        for run_id, findings in output.findings.items():
+            if run_id in by_id:
+                by_id[run_id].findings.extend(_as_findings(findings))
+
+
+def _as_findings(findings: object) -> list[Finding]:
+    return [f for f in findings if isinstance(f, Finding)]  # type: ignore[attr-defined]
 
 
 def _dedupe_run_ids(runs: list[RunResult]) -> None:

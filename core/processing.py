@@ -13,7 +13,7 @@ import numpy as np
 from .config import GeometryConfig, StudyConfig
 from .datamodel import Run
 from .fitting import FitResult, failed_fit, fit_model, select_model
-from .records import CheckContext, Conversion, Finding
+from .records import CheckContext, Conversion, Finding, Result
 from .registry import Provided, Registry
 
 PASS_THROUGH = "instrument"
@@ -31,6 +31,7 @@ class RunResult:
     flags: list[list[str]]
     findings: list[Finding] = field(default_factory=list)
     fits: list[FitResult] = field(default_factory=list)
+    results: list[Result] = field(default_factory=list)
 
     @property
     def selected(self) -> FitResult | None:
@@ -142,6 +143,7 @@ def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
     if conversion is None:
         return result
     _apply_conversion(run, conversion)
+    result.results.extend(conversion.results)
     for finding in run_checks(run, config, registry):
         result.findings.append(finding)
         if finding.point_index is not None and 0 <= finding.point_index < n:

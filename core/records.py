@@ -92,13 +92,34 @@ class Importer:
 
 
 @dataclass(frozen=True)
+class Result:
+    """A run-level result: a number with its unit, uncertainty and how it was obtained.
+
+    Geometries (plastic viscosity of a multi-speed viscometer, size of a correction), the
+    fitting engine (zero-shear viscosity, viscosity at a shear rate) and plugins report these;
+    they go to results.parquet. ``at_shear_rate`` (1/s) qualifies rate-dependent results;
+    ``extrapolated`` is true when that rate lies outside the measured range.
+    """
+
+    name: str
+    value: float | None
+    unit: str
+    stderr: float | None = None
+    method: str = ""
+    at_shear_rate: float | None = None
+    extrapolated: bool = False
+    note: str = ""
+
+
+@dataclass(frozen=True)
 class Conversion:
     """A geometry's result for one run, arrays of one value per point, SI units.
 
     ``shear_rate``/``shear_stress`` are the corrected (true) values; the ``*_apparent``
     arrays are what the Newtonian/narrow-gap formulas (or the instrument) give.
-    ``correction`` names the correction applied (``"none"`` for a pass-through) and
-    ``notes`` are run-level findings to record (check id, severity, message).
+    ``correction`` names the correction applied (``"none"`` for a pass-through),
+    ``notes`` are findings to record on the run, ``extra_columns`` further point columns
+    (SI; e.g. ``first_normal_stress_difference``) and ``results`` run-level results.
     """
 
     shear_rate: "np.ndarray"
@@ -108,6 +129,7 @@ class Conversion:
     correction: str = "none"
     notes: tuple["Finding", ...] = ()
     extra_columns: Mapping[str, "np.ndarray"] = field(default_factory=dict)
+    results: tuple[Result, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -223,3 +245,40 @@ class Writer:
     title: str
     write: Callable[[Any, Path], Sequence[Path]]
     order: int = 100
+
+
+@dataclass(frozen=True)
+class AnalysisTable:
+    """A table an analysis adds to the output: ``OUT/tables/<name>.parquet``.
+
+    ``rows`` are dicts of plain values (str, float, int, bool, None); ``units`` maps column
+    names to unit labels (written to the Arrow field metadata under ``unit``).
+    """
+
+    name: str
+    rows: Sequence[Mapping[str, Any]]
+    units: Mapping[str, str] = field(default_factory=dict)
+    title: str = ""
+
+
+@dataclass(frozen=True)
+class AnalysisOutput:
+    """What a study-level analysis found: tables, and findings keyed by run id."""
+
+    tables: tuple[AnalysisTable, ...] = ()
+    findings: Mapping[str, Sequence[Finding]] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class Analysis:
+    """A study-level analysis across runs (wall slip from several gaps, replicate agreement).
+
+    ``run(result)`` gets the :class:`~gammadot.pipeline.StudyResult` after every run was
+    processed and returns an :class:`AnalysisOutput` (or ``None`` when it does not apply).
+    It never replaces measured data; its tables stand beside them.
+    """
+
+    id: str
+    title: str
+    run: Callable[[Any], AnalysisOutput | None]
+    reference: str = ""

@@ -13,7 +13,7 @@ from typing import Any, Generic, TypeVar
 import pluggy
 
 from .plugin_manager import PluginLoadError
-from .records import Check, GeometryType, Importer, Model, Writer
+from .records import Analysis, Check, GeometryType, Importer, Model, Writer
 
 R = TypeVar("R")
 
@@ -23,6 +23,7 @@ KINDS: dict[str, tuple[str, type]] = {
     "geometries": ("gammadot_geometries", GeometryType),
     "models": ("gammadot_models", Model),
     "checks": ("gammadot_checks", Check),
+    "analyses": ("gammadot_analyses", Analysis),
     "writers": ("gammadot_writers", Writer),
 }
 
@@ -43,6 +44,7 @@ class Registry:
     geometries: dict[str, Provided[GeometryType]] = field(default_factory=dict)
     models: dict[str, Provided[Model]] = field(default_factory=dict)
     checks: dict[str, Provided[Check]] = field(default_factory=dict)
+    analyses: dict[str, Provided[Analysis]] = field(default_factory=dict)
     writers: dict[str, Provided[Writer]] = field(default_factory=dict)
     plugins: dict[str, str] = field(default_factory=dict)  # plugin name -> version/origin
     blocked: list[str] = field(default_factory=list)
@@ -90,7 +92,7 @@ def _add(table: dict[str, Provided[Any]], kind: str, record_type: type, plugin: 
                               f"expected gammadot.{record_type.__name__}")
     if record.id in table:
         other = table[record.id].plugin
-        raise PluginLoadError(f"{kind[:-1]} id '{record.id}' is provided twice: by plugin '{other}' and by "
+        raise PluginLoadError(f"{record_type.__name__.lower()} id '{record.id}' is provided twice: by plugin '{other}' and by "
                               f"plugin '{plugin}'; block one of them with --block NAME")
     table[record.id] = Provided(plugin, record)
 

@@ -33,7 +33,7 @@ POINT_COLUMNS: dict[str, str] = {
     "dial_reading": "1",
     "first_normal_stress_difference": "Pa",
 }
-TABLE_NAMES = ("runs", "points", "fits", "parameters", "checks", "rejected")
+TABLE_NAMES = ("runs", "points", "fits", "parameters", "results", "checks", "rejected")
 
 
 def _field(name: str, type_: pa.DataType, unit: str | None = None) -> pa.Field:
@@ -156,6 +156,36 @@ def parameters_table(result: "StudyResult") -> pa.Table:
     })
 
 
+def results_table(result: "StudyResult") -> pa.Table:
+    """results.parquet: run-level results (from geometries, fits and plugins)."""
+    rows = [(r.run.run_id, x) for r in result.runs for x in r.results]
+    return _table({
+        "run_id": ([rid for rid, _ in rows], pa.string(), None),
+        "name": ([x.name for _, x in rows], pa.string(), None),
+        "value": ([x.value for _, x in rows], pa.float64(), None),
+        "stderr": ([x.stderr for _, x in rows], pa.float64(), None),
+        "unit": ([x.unit for _, x in rows], pa.string(), None),
+        "method": ([x.method for _, x in rows], pa.string(), None),
+        "at_shear_rate": ([x.at_shear_rate for _, x in rows], pa.float64(), "1/s"),
+        "extrapolated": ([x.extrapolated for _, x in rows], pa.bool_(), None),
+        "note": ([x.note for _, x in rows], pa.string(), None),
+    })
+
+
+def analysis_tables(result: "StudyResult") -> dict[str, pa.Table]:
+    """Tables added by study-level analyses (name must not clash with a contract table)."""
+    tables: dict[str, pa.Table] = {}
+    for analysis_id, output in result.analyses.items():
+        for extra in output.tables:
+            if extra.name in TABLE_NAMES or extra.name in tables:
+                raise ValueError(f"analysis '{analysis_id}' table name '{extra.name}' is already used")
+            table = pa.Table.from_pylist([dict(row) for row in extra.rows])
+            fields = [f.with_metadata({"unit": extra.units[f.name]}) if f.name in extra.units else f
+                      for f in table.schema]
+            tables[extra.name] = table.cast(pa.schema(fields))
+    return tables
+
+
 def checks_table(result: "StudyResult") -> pa.Table:
     """checks.parquet: every finding (import notes, geometry notes, checks) per run."""
     rows = [(r.run.run_id, f) for r in result.runs for f in r.findings]
@@ -183,5 +213,6 @@ def build_tables(result: "StudyResult") -> dict[str, pa.Table]:
     """All contract tables by name (``runs``, ``points``, ...)."""
     builders: Iterable[tuple[str, Any]] = (
         ("runs", runs_table), ("points", points_table), ("fits", fits_table),
-        ("parameters", parameters_table), ("checks", checks_table), ("rejected", rejected_table))
-    return {name: build(result) for name, build in builders}
+        ("parameters", parameters_table), ("results", results_table), ("checks", checks_table),
+        ("rejected", rejected_table))
+    return {**{name: build(result) for name, build in builders}, **analysis_tables(result)}

@@ -142,3 +142,31 @@ def test_plugins_command_lists_what_each_provides() -> None:
     assert "models: newtonian, power_law" in result.output
     assert "importers: delimited_text" in result.output
     assert "basic_checks  (blocked)" in result.output
+
+
+def test_analysis_adds_a_table_and_findings_and_a_raising_one_is_recorded(tmp_path: Path) -> None:
+    import pyarrow.parquet as pq
+
+    from gammadot.pipeline import write_outputs
+    from gammadot.records import Analysis, AnalysisOutput, AnalysisTable, Finding
+
+    def count_runs(result):
+        rows = [{"sample": r.run.sample, "n_points": r.run.n_points} for r in result.runs]
+        first = result.runs[0].run.run_id
+        return AnalysisOutput(tables=(AnalysisTable("run_sizes", rows, units={"n_points": "1"}),),
+                              findings={first: [Finding("sizes", "info", "counted")]})
+
+    def explode(result):
+        raise ValueError("no gaps")
+
+    plugin = _plugin(gammadot_analyses=lambda: [Analysis("sizes", "Sizes", count_runs),
+                                                Analysis("broken", "Broken", explode)])
+    registry = build_registry(build_plugin_manager(entry_points=False, extra=[("lab_analyses", plugin)]))
+    result = process_study(_power_law_study(tmp_path), registry)
+    assert [f.message for f in result.runs[0].findings if f.check == "sizes"] == ["counted"]
+    (failure,) = result.analysis_failures
+    assert failure.writer == "broken" and failure.plugin == "lab_analyses" and "no gaps" in failure.message
+    write_outputs(result, tmp_path / "out")
+    table = pq.read_table(tmp_path / "out" / "tables" / "run_sizes.parquet")
+    assert table.to_pylist() == [{"sample": "a.csv", "n_points": 8}, {"sample": "b.csv", "n_points": 8}]
+    assert table.schema.field("n_points").metadata == {b"unit": b"1"}
