@@ -77,8 +77,11 @@ def gammadot_checks() -> Sequence[Check]:
 
     Called once at start-up. ``run(run, context)`` is called for every converted run, before
     fitting; its point findings with ``exclude=True`` keep points out of fits (they stay in
-    points.parquet with the check id in ``flags``). ``study.toml`` ``[checks.<id>]`` can turn
-    a check off (``enabled = false``) or keep its points in the fit (``exclude = false``).
+    points.parquet with the check id in ``flags``). A check with ``after_fit=True`` runs after
+    fitting instead, sees the fits in ``context.fits`` and only flags points.
+    ``study.toml`` ``[checks.<id>]`` can turn a check off (``enabled = false``), keep its
+    points in the fit (``exclude = false``) and set the check's own thresholds (the check reads
+    ``context.settings``).
     """
 
 

@@ -32,6 +32,7 @@ class RunResult:
     findings: list[Finding] = field(default_factory=list)
     fits: list[FitResult] = field(default_factory=list)
     results: list[Result] = field(default_factory=list)
+    geometry: GeometryConfig | None = None
 
     @property
     def selected(self) -> FitResult | None:
@@ -57,7 +58,8 @@ def resolve_geometry(run: Run, config: StudyConfig) -> tuple[GeometryConfig | No
     return None, notes
 
 
-def convert(run: Run, config: StudyConfig, registry: Registry) -> tuple[Conversion | None, str | None, list[Finding]]:
+def convert(run: Run, config: StudyConfig,
+            registry: Registry) -> tuple[Conversion | None, GeometryConfig | None, list[Finding]]:
     """Apply the run's geometry, falling back to the instrument's own values."""
     geometry, notes = resolve_geometry(run, config)
     attempts: list[tuple[Provided, GeometryConfig | None]] = []
@@ -74,7 +76,7 @@ def convert(run: Run, config: StudyConfig, registry: Registry) -> tuple[Conversi
                                  f"{type(exc).__name__}: {exc}"))
             continue
         if result is not None:
-            return result, (geo.id if geo else None), notes + list(result.notes)
+            return result, geo, notes + list(result.notes)
     notes.append(Finding("geometry.none", "error",
                          "no shear rate and shear stress could be obtained: the run needs instrument "
                          "shear rate with stress or viscosity, or torque and speed with a geometry"))
@@ -92,23 +94,38 @@ def _apply_conversion(run: Run, conversion: Conversion) -> None:
     columns.update(conversion.extra_columns)
 
 
-def run_checks(run: Run, config: StudyConfig, registry: Registry) -> list[Finding]:
-    """All enabled checks on a converted run; a raising check becomes an error finding."""
-    findings: list[Finding] = []
+def run_checks(result: "RunResult", config: StudyConfig, registry: Registry, *, after_fit: bool) -> None:
+    """Run the enabled checks of one stage on a converted run and apply their findings.
+
+    Stage ``after_fit=False`` runs before fitting (its exclusions keep points out of fits);
+    ``after_fit=True`` runs with the fits known (fit adequacy) and only flags. A raising check
+    becomes an error finding naming its plugin.
+    """
+    context_fits = tuple(result.fits)
     for check_id, provided in registry.checks.items():
+        if provided.record.after_fit is not after_fit:
+            continue
         settings = config.checks.get(check_id, {})
         if settings.get("enabled", True) is False:
             continue
+        context = CheckContext(study=config, settings=settings, geometry=result.geometry, fits=context_fits)
         try:
-            found = list(provided.record.run(run, CheckContext(study=config, settings=settings)))
+            found = list(provided.record.run(result.run, context))
         except Exception as exc:
-            findings.append(Finding(check_id, "error", f"check plugin '{provided.plugin}' failed: "
-                                                       f"{type(exc).__name__}: {exc}"))
+            result.findings.append(Finding(check_id, "error", f"check plugin '{provided.plugin}' failed: "
+                                                              f"{type(exc).__name__}: {exc}"))
             continue
-        keep_in_fit = settings.get("exclude", True) is False
-        findings.extend(Finding(f.check, f.severity, f.message, f.point_index, f.exclude and not keep_in_fit)
-                        for f in found)
-    return findings
+        keep_in_fit = after_fit or settings.get("exclude", True) is False
+        for f in found:
+            _record(result, Finding(f.check, f.severity, f.message, f.point_index, f.exclude and not keep_in_fit))
+
+
+def _record(result: "RunResult", finding: Finding) -> None:
+    result.findings.append(finding)
+    index = finding.point_index
+    if index is not None and 0 <= index < len(result.flags):
+        result.flags[index].append(finding.check)
+        result.excluded[index] |= finding.exclude
 
 
 def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
@@ -132,22 +149,19 @@ def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Regis
 
 
 def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
-    """Convert, check and fit one run."""
-    conversion, geometry_id, findings = convert(run, config, registry)
-    geometry_type = config.geometries[geometry_id].type if geometry_id else (PASS_THROUGH if conversion else None)
+    """Convert, check, fit, then run the after-fit checks, for one run."""
+    conversion, geometry, findings = convert(run, config, registry)
+    geometry_type = geometry.type if geometry else (PASS_THROUGH if conversion else None)
     n = run.n_points
-    excluded = np.zeros(n, dtype=bool)
-    flags: list[list[str]] = [[] for _ in range(n)]
-    result = RunResult(run, geometry_id, geometry_type, conversion.correction if conversion else None,
-                       excluded, flags, findings=list(run.findings) + findings)
+    result = RunResult(run, geometry.id if geometry else None, geometry_type,
+                       conversion.correction if conversion else None,
+                       np.zeros(n, dtype=bool), [[] for _ in range(n)],
+                       findings=list(run.findings) + findings, geometry=geometry)
     if conversion is None:
         return result
     _apply_conversion(run, conversion)
     result.results.extend(conversion.results)
-    for finding in run_checks(run, config, registry):
-        result.findings.append(finding)
-        if finding.point_index is not None and 0 <= finding.point_index < n:
-            flags[finding.point_index].append(finding.check)
-            excluded[finding.point_index] |= finding.exclude
-    result.fits = fit_run(run, excluded, config, registry)
+    run_checks(result, config, registry, after_fit=False)
+    result.fits = fit_run(run, result.excluded, config, registry)
+    run_checks(result, config, registry, after_fit=True)
     return result

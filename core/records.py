@@ -212,10 +212,17 @@ class Finding:
 
 @dataclass(frozen=True)
 class CheckContext:
-    """What a check may read besides the run: the study config and its own settings."""
+    """What a check may read besides the run.
+
+    ``study``: the study config (density, limits...); ``settings``: the check's own
+    ``[checks.<id>]`` table; ``geometry``: the run's geometry (``None`` for instrument values);
+    ``fits``: the run's fits (empty before fitting; after-fit checks see them all).
+    """
 
     study: "StudyConfig"
     settings: Mapping[str, Any] = field(default_factory=dict)
+    geometry: "GeometryConfig | None" = None
+    fits: tuple[Any, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -224,6 +231,8 @@ class Check:
 
     ``run(run, context)`` returns findings; a point finding with ``exclude=True`` keeps the
     point out of fits. ``reference`` cites the physics or practice behind the check.
+    ``after_fit=True`` runs the check after fitting (it sees ``context.fits``); its findings
+    only flag points (no refit).
     """
 
     id: str
@@ -231,6 +240,7 @@ class Check:
     severity: Severity
     run: Callable[["Run", CheckContext], Sequence[Finding]]
     reference: str = ""
+    after_fit: bool = False
 
 
 @dataclass(frozen=True)
