@@ -89,7 +89,7 @@ def build_run(
     Raises :class:`ImportRejection` (with the header line) for a unit of the wrong dimension
     or an unknown unit; unrecognised columns are kept out and noted on the run.
     """
-    findings: list[Finding] = []
+    findings: list[Finding] = [Finding("import.note", "info", note) for note in raw.notes]
     columns: dict[str, Any] = {}
     source_units: dict[str, str] = {}
     for col in raw.columns:

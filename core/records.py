@@ -65,6 +65,7 @@ class RawRun:
     first_line: int
     header_line: int
     data_first_line: int
+    notes: tuple[str, ...] = ()  # one sentence each, recorded as info findings on the run
 
 
 @dataclass(frozen=True)

@@ -83,6 +83,7 @@ class _Table:
     first_row_fields: int
     dialect: _Dialect
     data_start: int
+    text_columns: frozenset[int] = frozenset()  # columns of words (status, timestamps): skipped
 
 
 @dataclass
@@ -377,7 +378,23 @@ def _try_header(text: _Text, line: str, nxt: int, line_no: int) -> _Table | None
     names, units = zip(*(split_unit(c) for c in cells))
     return _Table(names=list(names), units=list(units), header_line=line_no,
                   first_row_fields=len(sample[0]), dialect=_Dialect(delimiter, decimal, seen),
-                  data_start=first[1])
+                  data_start=first[1], text_columns=_text_columns(sample, len(cells), delimiter))
+
+
+def _text_columns(sample: list[list[str]], width: int, delimiter: str) -> frozenset[int]:
+    """Columns whose sampled cells are all words, not numbers (a status or a timestamp).
+
+    Such columns carry no flow-curve quantity; they are skipped and named in the run's notes.
+    A column with any number among its sampled cells stays numeric, so a stray word in it is
+    still reported as a bad cell.
+    """
+    decimals = _decimals_allowed(delimiter)
+    text = set()
+    for i in range(width):
+        cells = [row[i].strip() for row in sample if len(row) > i and row[i].strip() not in _NULLS]
+        if cells and not any(_is_number(c, decimals) for c in cells):
+            text.add(i)
+    return frozenset(text)
 
 
 def _choose_delimiter(header: str, rows: list[str]) -> str | None:
@@ -536,13 +553,14 @@ def _read_body_arrow(body: "pa.Buffer", table: _Table) -> list["np.ndarray"]:
 
     n_named = len(table.names)
     keys = [f"c{i}" for i in range(max(n_named, table.first_row_fields))]
+    types = {k: pa.string() if i in table.text_columns else pa.float64() for i, k in enumerate(keys)}
     result = pacsv.read_csv(
         pa.BufferReader(body),
         read_options=pacsv.ReadOptions(column_names=keys),
         parse_options=pacsv.ParseOptions(delimiter=table.dialect.delimiter,
                                          ignore_empty_lines=True),
         convert_options=pacsv.ConvertOptions(
-            column_types={k: pa.float64() for k in keys}, decimal_point=table.dialect.decimal,
+            column_types=types, decimal_point=table.dialect.decimal,
             null_values=list(NULL_TOKENS), strings_can_be_null=False,
             quoted_strings_can_be_null=True))
     if any(col.null_count != len(col) for col in result.columns[n_named:]):
@@ -552,7 +570,15 @@ def _read_body_arrow(body: "pa.Buffer", table: _Table) -> list["np.ndarray"]:
         for col in result.columns[1:]:
             present = pc.or_(present, pc.invert(pc.is_null(col)))
         result = result.filter(present)  # rows of empty cells are blank lines
-    return [_to_numpy(result.column(i)) for i in range(n_named)]
+    return [_nan_column(len(result)) if i in table.text_columns else _to_numpy(result.column(i))
+            for i in range(n_named)]
+
+
+def _nan_column(n: int) -> "np.ndarray":
+    """A placeholder for a skipped text column (dropped before the run is built)."""
+    import numpy as np
+
+    return np.full(n, np.nan)
 
 
 def _to_numpy(column: "pa.ChunkedArray") -> "np.ndarray":
@@ -617,9 +643,10 @@ def _read_body_cells(body: "pa.Buffer", table: _Table, first_line: int) -> list[
     missing = missing.to_numpy(zero_copy_only=False)
     decimal = _body_decimal(grid, table.dialect, width)
     numeric = _full_match(grid.text, decimal)
+    words = np.isin(grid.col, list(table.text_columns))
     _raise_first_problem(grid, table, first_line, beyond=~missing & (grid.col >= width),
-                         bad=~numeric & ~missing & (grid.col < width), present=~missing)
-    take = numeric & (grid.col < width)
+                         bad=~numeric & ~missing & (grid.col < width) & ~words, present=~missing)
+    take = numeric & (grid.col < width) & ~words
     chosen = pc.filter(grid.text, pa.array(take))
     if decimal == ",":
         chosen = pc.replace_substring(chosen, pattern=",", replacement=".")
@@ -692,7 +719,8 @@ def _read_body_python(text: _Text, table: _Table, end: int) -> list["np.ndarray"
             raise ImportRejection(f"{fields} fields, but the header on "
                                   f"line {table.header_line} has {width}", line_no)
         cells = cells[:width]
-        row = [_to_float(c, dialect.decimal, line_no, table.names[i]) for i, c in enumerate(cells)]
+        row = [float("nan") if i in table.text_columns else _to_float(c, dialect.decimal, line_no, table.names[i])
+               for i, c in enumerate(cells)]
         rows.append(row + [float("nan")] * (width - len(row)))
     values = np.array(rows, dtype=np.float64).reshape(len(rows), width)
     return [values[:, i].copy() for i in range(width)]
@@ -769,8 +797,11 @@ def _make_run(text: _Text, pre: _Preamble, end: int) -> RawRun:
     table = pre.table
     assert table is not None
     values = _read_body(text, table, end)
-    columns = [RawColumn(name=n, unit=u, values=v) for n, u, v in zip(table.names, table.units, values)]
-    return RawRun(metadata=dict(pre.metadata), columns=columns,
+    columns = [RawColumn(name=n, unit=u, values=v)
+               for i, (n, u, v) in enumerate(zip(table.names, table.units, values)) if i not in table.text_columns]
+    notes = tuple(f"column '{table.names[i]}' holds text, not numbers, and is not used"
+                  for i in sorted(table.text_columns))
+    return RawRun(metadata=dict(pre.metadata), columns=columns, notes=notes,
                   first_line=pre.first_line if pre.first_line is not None else table.header_line,
                   header_line=table.header_line, data_first_line=text.line_no(table.data_start))
 

@@ -533,3 +533,32 @@ def test_hook_provides_the_importer() -> None:
     assert isinstance(importer, Importer) and importer.id == "delimited_text"
     assert set(importer.suffixes) == {".csv", ".txt", ".tsv", ".dat"}
     assert importer.sniff is dt.sniff and importer.read is dt.read
+
+
+# --------------------------------------------------------------------------- text columns
+# Common practice: instrument exports often carry a status word or a timestamp per point.
+# Such columns are skipped (and named in the run's notes); numeric columns keep their checks.
+
+TEXT_COLUMN_BODIES = {
+    "regular": "1,1,2,ok\n2,2,3,ok\n3,4,5,overload\n",                  # pyarrow fast path
+    "uneven": "1,1,2,ok\n2,2,3\n3,4,5,overload\n",                       # cell-grid path
+    "quoted": '1,1,2,"ok, steady"\n2,2,3,ok\n3,4,5,"over, load"\n',      # Python row path
+}
+
+
+@pytest.mark.parametrize("body", list(TEXT_COLUMN_BODIES))
+def test_text_column_is_skipped_and_noted(body: str) -> None:
+    data = ("sample: gel\nTime [s],Shear rate [1/s],Viscosity [Pa s],Status\n" + TEXT_COLUMN_BODIES[body]).encode()
+    (run,) = dt.parse_text(data)
+    assert [c.name for c in run.columns] == ["Time", "Shear rate", "Viscosity"]
+    np.testing.assert_array_equal(run.columns[2].values, [2.0, 3.0, 5.0])
+    assert run.notes == ("column 'Status' holds text, not numbers, and is not used",)
+
+
+def test_timestamp_column_is_text_but_a_stray_word_in_a_number_column_is_still_an_error() -> None:
+    rows = "\n".join(f"2026-11-03 14:2{i}:00;{i + 1},5;{2 * i + 1},0" for i in range(6))
+    (run,) = dt.parse_text(f"Timestamp;Rate [1/s];Stress [Pa]\n{rows}\n".encode())
+    assert [c.name for c in run.columns] == ["Rate", "Stress"] and "Timestamp" in run.notes[0]
+    with pytest.raises(ImportRejection) as info:
+        dt.parse_text(f"Timestamp;Rate [1/s];Stress [Pa]\n{rows}\n2026-11-03 14:30:00;9,5;n/c\n".encode())
+    assert info.value.line == 8 and info.value.reason == "column 'Stress': 'n/c' is not a number"
