@@ -29,13 +29,15 @@ class ImportRejection(Exception):
     """Raised by an importer when a file cannot be read.
 
     ``line`` is the 1-based line (or row) where the problem was found, ``None`` when the
-    problem concerns the whole file. The message is one sentence a lab analyst can act on.
+    problem concerns the whole file. ``column`` is the 1-based field (cell) of that line when
+    the problem is one cell, else ``None``. The message is one sentence a lab analyst can act on.
     """
 
-    def __init__(self, reason: str, line: int | None = None) -> None:
+    def __init__(self, reason: str, line: int | None = None, column: int | None = None) -> None:
         super().__init__(reason)
         self.reason = reason
         self.line = line
+        self.column = column
 
 
 @dataclass(frozen=True)

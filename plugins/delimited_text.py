@@ -100,11 +100,14 @@ class _Text:
     """The file as UTF-8 bytes with LF line ends, walked by line with 1-based line numbers.
 
     Line numbers are counted incrementally (``bytes.count`` between the last two positions
-    asked for), so walking a file front to back stays linear.
+    asked for), so walking a file front to back stays linear. ``delimiters`` are the cell
+    delimiters a table may use (all of :data:`DELIMITERS` for a text file; a caller that
+    writes the text itself, such as the spreadsheet importer, allows only its own).
     """
 
-    def __init__(self, buf: bytes) -> None:
+    def __init__(self, buf: bytes, delimiters: tuple[str, ...] = DELIMITERS) -> None:
         self.buf = buf
+        self.delimiters = delimiters
         self._pos = 0
         self._line = 1
         self._arrow: "pa.Buffer | None" = None
@@ -252,9 +255,9 @@ def _is_data_row(line: str, dialect: _Dialect) -> bool:
     return any(cells) and all(c in _NULLS or _is_number(c, decimals) for c in cells)
 
 
-def _numbers_only(line: str) -> bool:
+def _numbers_only(line: str, delimiters: tuple[str, ...] = DELIMITERS) -> bool:
     """Whether ``line`` is two or more numbers under some delimiter (a headerless row)."""
-    for d in DELIMITERS:
+    for d in delimiters:
         cells = [c for c in _trimmed(_cells(line, d)) if c not in _NULLS]
         if len(cells) >= 2 and _numeric_share(cells, _decimals_allowed(d)) == 1.0:
             return True
@@ -314,9 +317,9 @@ def _unquote(text: str) -> str:
     return text
 
 
-def _looks_like_header(line: str) -> bool:
+def _looks_like_header(line: str, delimiters: tuple[str, ...] = DELIMITERS) -> bool:
     """Whether ``line`` reads like a table header: 2+ non-numeric cells, one with a unit."""
-    for d in DELIMITERS:
+    for d in delimiters:
         cells = [c for c in _trimmed(_cells(line, d)) if c]
         if (len(cells) >= 2 and not any(_is_number(c, ".,") for c in cells)
                 and any(_has_unit(c) for c in cells)):
@@ -343,17 +346,18 @@ def _scan_preamble(text: _Text, pos: int) -> _Preamble:
         pre.table = _try_header(text, stripped, nxt, line_no)
         if pre.table is not None:
             return pre
-        if _numbers_only(stripped):
+        if _numbers_only(stripped, text.delimiters):
             raise ImportRejection(f"no table header found before the numbers on line {line_no}",
                                   line_no)
-        _add_metadata(pre, stripped, line_no)
+        _add_metadata(pre, stripped, line_no, text.delimiters)
         pos = nxt
     return pre
 
 
-def _add_metadata(pre: _Preamble, line: str, line_no: int) -> None:
+def _add_metadata(pre: _Preamble, line: str, line_no: int,
+                  delimiters: tuple[str, ...] = DELIMITERS) -> None:
     """Record a metadata line (first occurrence of a key wins) or a header-like line."""
-    if _looks_like_header(line):
+    if _looks_like_header(line, delimiters):
         pre.header_like_line = line_no
     pair = _metadata_pair(line)
     if pair is None:
@@ -369,7 +373,8 @@ def _try_header(text: _Text, line: str, nxt: int, line_no: int) -> _Table | None
     first = text.next_content(nxt)
     if first is None:
         return None
-    delimiter = _choose_delimiter(line, _following_lines(text, first[1], _CONSISTENCY_ROWS))
+    delimiter = _choose_delimiter(line, _following_lines(text, first[1], _CONSISTENCY_ROWS),
+                                  text.delimiters)
     if delimiter is None:
         return None
     sample = [_cells(row, delimiter) for row in _following_lines(text, first[1], _SAMPLE_ROWS)]
@@ -397,7 +402,8 @@ def _text_columns(sample: list[list[str]], width: int, delimiter: str) -> frozen
     return frozenset(text)
 
 
-def _choose_delimiter(header: str, rows: list[str]) -> str | None:
+def _choose_delimiter(header: str, rows: list[str],
+                      delimiters: tuple[str, ...] = DELIMITERS) -> str | None:
     """The delimiter that splits ``header`` into a table header for the ``rows`` below it.
 
     Under it the header has 2+ cells, mostly text, and the first row is mostly numbers.
@@ -405,7 +411,7 @@ def _choose_delimiter(header: str, rows: list[str]) -> str | None:
     wins (count consistency), then the more numeric first row, then the more columns.
     """
     best: tuple[tuple[int, float, int], str] | None = None
-    for d in DELIMITERS:
+    for d in delimiters:
         names = _trimmed(_cells(header, d))
         if len(names) < 2 or _numeric_share(names, _decimals_allowed(d)) >= 0.5 or all(
                 n in _NULLS for n in names):
@@ -687,12 +693,12 @@ def _raise_first_problem(grid: _CellGrid, table: _Table, first_line: int, *,
         fields = int(grid.col[(grid.row == row) & present].max()) + 1
         line_no = first_line + int(row)
         raise ImportRejection(f"{fields} fields, but the header on line "
-                              f"{table.header_line} has {len(table.names)}", line_no)
+                              f"{table.header_line} has {len(table.names)}", line_no, fields)
     if bad_at is not None:
         line_no = first_line + int(grid.row[bad_at])
         cell = grid.text[bad_at].as_py()
         raise ImportRejection(f"column '{table.names[grid.col[bad_at]]}': "
-                              f"'{_shown(cell)}' is not a number", line_no)
+                              f"'{_shown(cell)}' is not a number", line_no, int(grid.col[bad_at]) + 1)
 
 
 def _read_body_python(text: _Text, table: _Table, end: int) -> list["np.ndarray"]:
@@ -717,9 +723,9 @@ def _read_body_python(text: _Text, table: _Table, end: int) -> list["np.ndarray"
         if any(c not in _NULLS for c in cells[width:]):
             fields = max(i for i, c in enumerate(cells) if c not in _NULLS) + 1
             raise ImportRejection(f"{fields} fields, but the header on "
-                                  f"line {table.header_line} has {width}", line_no)
+                                  f"line {table.header_line} has {width}", line_no, fields)
         cells = cells[:width]
-        row = [float("nan") if i in table.text_columns else _to_float(c, dialect.decimal, line_no, table.names[i])
+        row = [float("nan") if i in table.text_columns else _to_float(c, dialect.decimal, line_no, table.names[i], i)
                for i, c in enumerate(cells)]
         rows.append(row + [float("nan")] * (width - len(row)))
     values = np.array(rows, dtype=np.float64).reshape(len(rows), width)
@@ -735,13 +741,16 @@ def _settle_decimal(lines: list[str], dialect: _Dialect) -> _Dialect:
     return _Dialect(dialect.delimiter, decimal, seen)
 
 
-def _to_float(cell: str, decimal: str, line_no: int, column: str) -> float:
-    """The value of one cell (NaN when missing), or an :class:`ImportRejection`."""
+def _to_float(cell: str, decimal: str, line_no: int, column: str, index: int) -> float:
+    """The value of one cell (NaN when missing), or an :class:`ImportRejection`.
+
+    ``column`` is the header name, ``index`` the 0-based field of the cell in its line.
+    """
     if cell in _NULLS:
         return float("nan")
     if not _NUMBER[decimal].fullmatch(cell):
         raise ImportRejection(f"column '{column}': '{_shown(cell)}' is not a "
-                              "number", line_no)
+                              "number", line_no, index + 1)
     return float(cell.replace(",", ".")) if decimal == "," else float(cell)
 
 
@@ -754,16 +763,26 @@ def _shown(cell: str, limit: int = 40) -> str:
 # --------------------------------------------------------------------------- runs
 
 
-def parse_text(data: bytes, *, source: str = "") -> list[RawRun]:
+class NoTableFound(ImportRejection):
+    """The text holds no table header with data rows at all (nothing but metadata or notes).
+
+    A spreadsheet importer uses the distinction: a sheet of notes is skipped, not an error.
+    """
+
+
+def parse_text(data: bytes, *, source: str = "",
+               delimiters: tuple[str, ...] = DELIMITERS) -> list[RawRun]:
     """All runs of a delimited-text export given as bytes, in file order.
 
     ``source`` is the file's name as the caller knows it; it is not needed for parsing and
     is accepted so callers can pass it uniformly (messages name lines, the core adds the file).
-    Raises :class:`ImportRejection` (one-sentence reason, 1-based line) when the file cannot
-    be read.
+    ``delimiters`` narrows the cell delimiters tried (a caller that wrote the text itself
+    passes the one it used). Raises :class:`ImportRejection` (one-sentence reason, 1-based
+    line, and the 1-based field when one cell is at fault) when the text cannot be read;
+    :class:`NoTableFound` when it holds no table at all.
     """
     del source  # reasons name the line; the caller adds the file name
-    text = _Text(_decode(data))
+    text = _Text(_decode(data), delimiters)
     runs: list[RawRun] = []
     pos = 0
     while pos < len(text.buf):
@@ -774,7 +793,7 @@ def parse_text(data: bytes, *, source: str = "") -> list[RawRun]:
         end, pos = _table_end(text, pre.table)
         runs.append(_make_run(text, pre, end))
     if not runs:
-        raise ImportRejection("no table header found")
+        raise NoTableFound("no table header found")
     return runs
 
 
