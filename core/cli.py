@@ -167,5 +167,12 @@ def plugins_command(block: tuple[str, ...]) -> None:
         click.echo(f"{name}  (blocked)")
 
 
+# Commands for gammadot's own formats and for plugin authors (module cli_kit).
+from .cli_kit import export_command, schema_command  # noqa: E402
+
+for _command in (schema_command, export_command):
+    main.add_command(_command)
+
+
 if __name__ == "__main__":  # pragma: no cover
     main()

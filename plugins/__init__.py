@@ -7,6 +7,7 @@ Each entry is (plugin name, module). The name is what users block with
 BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
     ("delimited_text", "gammadot.plugins.delimited_text"),
     ("spreadsheet", "gammadot.plugins.spreadsheet"),
+    ("json_runs", "gammadot.plugins.json_runs"),
     ("instrument_geometry", "gammadot.plugins.instrument_geometry"),
     ("rotational_geometries", "gammadot.plugins.rotational_geometries"),
     ("basic_models", "gammadot.plugins.basic_models"),
