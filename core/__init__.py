@@ -23,6 +23,7 @@ from .records import (
     RawColumn,
     RawRun,
     Result,
+    RunSection,
     Writer,
 )
 
@@ -46,6 +47,7 @@ __all__ = [
     "RawColumn",
     "RawRun",
     "Result",
+    "RunSection",
     "Writer",
     "__version__",
     "hookimpl",

@@ -155,9 +155,15 @@ def demo_command(directory: Path, quiet: bool) -> None:
 
 @main.command("plugins")
 @click.option("--block", multiple=True, metavar="NAME", help=_BLOCK_HELP)
-def plugins_command(block: tuple[str, ...]) -> None:
+@click.option("--check", is_flag=True, help="Validate every plugin against the hook specs and list every problem "
+                                            "(exit 1 when there is an error).")
+def plugins_command(block: tuple[str, ...], check: bool) -> None:
     """List the installed plugins and what each provides (importers, geometries, models,
     checks, writers)."""
+    if check:
+        from .cli_kit import check_plugins_command
+
+        sys.exit(check_plugins_command(block))
     registry = _registry(block)
     for name, origin in registry.plugins.items():
         click.echo(f"{name}  ({origin})")
@@ -168,9 +174,9 @@ def plugins_command(block: tuple[str, ...]) -> None:
 
 
 # Commands for gammadot's own formats and for plugin authors (module cli_kit).
-from .cli_kit import export_command, schema_command  # noqa: E402
+from .cli_kit import export_command, new_plugin_command, schema_command  # noqa: E402
 
-for _command in (schema_command, export_command):
+for _command in (schema_command, export_command, new_plugin_command):
     main.add_command(_command)
 
 

@@ -1,6 +1,7 @@
 """Command-line commands for gammadot's own formats and for plugin authors.
 
-``gammadot schema`` and ``gammadot export`` live here, and are added
+``gammadot schema``, ``gammadot export``, ``gammadot new-plugin`` and the ``--check`` of
+``gammadot plugins`` live here, and are added
 to the main command group in :mod:`gammadot.cli`. Like the rest of the command line, this
 module imports only click at start-up; every command imports what it needs when it runs.
 """
@@ -13,6 +14,7 @@ from pathlib import Path
 import click
 
 EXIT_OK, EXIT_FAILED, EXIT_USAGE = 0, 1, 2
+PLUGIN_KINDS = ("importer", "model", "check", "geometry", "section")
 
 
 @click.command("schema")
@@ -83,3 +85,37 @@ def _version() -> str:
     from . import __version__
 
     return str(__version__)
+
+
+@click.command("new-plugin")
+@click.argument("name")
+@click.option("--kind", type=click.Choice(PLUGIN_KINDS), required=True,
+              help="What the plugin provides: an importer, a model, a check, a geometry, or a run-page section.")
+@click.option("--dir", "parent", type=click.Path(file_okay=False, path_type=Path), default=Path("."),
+              show_default=True, help="Folder in which the package folder NAME is created.")
+def new_plugin_command(name: str, kind: str, parent: Path) -> None:
+    """Write a small, installable plugin package NAME (pyproject.toml with the entry point,
+    the plugin module, a test that runs a study through the real pipeline, a README).
+    After `pip install -e NAME`, `pytest NAME` passes and `gammadot plugins` lists it."""
+    from .scaffold import ScaffoldError, write_plugin_package
+
+    try:
+        package = write_plugin_package(parent, name, kind)
+    except ScaffoldError as exc:
+        raise click.UsageError(str(exc)) from None
+    click.echo(f"{kind} plugin package written to {package.root}")
+    click.echo(f"next: pip install -e {package.root} && pytest {package.root}")
+
+
+def check_plugins_command(block: tuple[str, ...]) -> int:
+    """``gammadot plugins --check``: one line per problem, a summary, the exit code."""
+    from .hookspecs import HOOKSPEC_VERSION
+    from .plugin_check import candidates, check_plugins
+
+    report = check_plugins(candidates(block))
+    for message in report.messages:
+        click.echo(str(message))
+    errors, warnings = len(report.errors), len(report.messages) - len(report.errors)
+    click.echo(f"checked {len(report.checked)} plugins against hook specs {HOOKSPEC_VERSION}: "
+               f"{errors} error{'s' if errors != 1 else ''}, {warnings} warning{'s' if warnings != 1 else ''}")
+    return EXIT_FAILED if errors else EXIT_OK

@@ -24,9 +24,16 @@ from typing import Sequence
 
 import pluggy
 
-from .records import Analysis, Check, GeometryType, Importer, Model, Writer
+from .records import Analysis, Check, GeometryType, Importer, Model, RunSection, Writer
 
 PROJECT_NAME = "gammadot"
+
+# The version of this contract. A plugin declares the versions it supports in a module (or
+# object) attribute ``GAMMADOT_HOOKSPEC``, a PEP 440 specifier such as ">=1,<2"; a plugin whose
+# range excludes this version is refused at start-up (gammadot.compat). The minor number grows
+# when hooks or optional record fields are added (old plugins keep working), the major number
+# when a hook or record changes incompatibly.
+HOOKSPEC_VERSION = "1.0"
 
 hookspec = pluggy.HookspecMarker(PROJECT_NAME)
 hookimpl = pluggy.HookimplMarker(PROJECT_NAME)
@@ -105,4 +112,19 @@ def gammadot_writers() -> Sequence[Writer]:
     ``write(result, out_dir)`` is called in ascending ``order`` with the
     :class:`~gammadot.pipeline.StudyResult`; it returns the paths it wrote. Writers write
     atomically and never below the input files except inside ``out_dir``.
+    """
+
+
+@hookspec
+def gammadot_run_sections() -> Sequence[RunSection]:
+    """Return the sections this plugin adds to every run's page of the study site.
+
+    Called once at start-up. When the site is written, each section's ``render(run_result)``
+    is called for every run with its :class:`~gammadot.processing.RunResult` (the run, its
+    fits, findings and excluded points). It returns an HTML fragment, or ``None`` to leave the
+    section out of that run's page. The fragment is inserted as it is: the plugin escapes
+    every text it takes from input files (``markupsafe.escape`` or ``html.escape``) and links
+    to nothing outside the site. Sections appear after the findings, in ascending ``order``;
+    a render that raises shows a one-line note instead of the section, and the site is
+    written anyway.
     """

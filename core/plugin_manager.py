@@ -4,6 +4,10 @@ Nothing happens at import time: :func:`build_plugin_manager` is called by the CL
 test) with the names to block. Third-party plugins arrive through the entry-point group
 ``gammadot``; a plugin that fails to load stops start-up with its name and how to block it.
 
+Every plugin is checked against the compatibility rule (:mod:`gammadot.compat`) before it
+is registered: one whose declared ``GAMMADOT_HOOKSPEC`` range excludes this gammadot's hook
+specs stops start-up with its name and both versions.
+
 Environment:
 - ``GAMMADOT_BLOCK_PLUGINS``: comma-separated plugin names never to register.
 - ``GAMMADOT_NO_ENTRY_POINTS=1``: load built-ins only (no third-party plugins).
@@ -46,7 +50,7 @@ def build_plugin_manager(block: Iterable[str] = (), *, entry_points: bool | None
     ``entry_points=None`` follows ``GAMMADOT_NO_ENTRY_POINTS``; ``extra`` registers
     (name, plugin) pairs last (tests use it for throwaway plugins).
     """
-    from gammadot.plugins import BUILTIN_PLUGINS
+    from gammadot.plugins import BUILTIN_HOOKSPEC, BUILTIN_PLUGINS
 
     pm = pluggy.PluginManager(PROJECT_NAME)
     pm.add_hookspecs(hookspecs)
@@ -54,13 +58,16 @@ def build_plugin_manager(block: Iterable[str] = (), *, entry_points: bool | None
         pm.set_blocked(name)
     for name, module_path in BUILTIN_PLUGINS:
         if not pm.is_blocked(name):
-            pm.register(importlib.import_module(module_path), name=name)
+            module = importlib.import_module(module_path)
+            _refuse_incompatible(name, module, "built-in", default=BUILTIN_HOOKSPEC)
+            pm.register(module, name=name)
     if entry_points is None:
         entry_points = os.environ.get(NO_ENTRY_POINTS_ENV, "") not in ("1", "true", "yes")
     if entry_points:
         _load_entry_points(pm)
     for name, plugin in extra:
         if not pm.is_blocked(name):
+            _refuse_incompatible(name, plugin, "added by the caller")
             pm.register(plugin, name=name)
     try:
         pm.check_pending()
@@ -82,8 +89,20 @@ def _load_entry_points(pm: pluggy.PluginManager) -> None:
             origin = f" from {dist.name} {dist.version}" if dist else ""
             raise PluginLoadError(f"plugin '{ep.name}' ({ep.value}{origin}) failed to load: "
                                   f"{type(exc).__name__}: {exc}; {_how_to_block(ep.name)}") from exc
+        dist = getattr(ep, "dist", None)
+        _refuse_incompatible(ep.name, plugin, f"{ep.value} from {dist.name} {dist.version}" if dist else ep.value)
         try:
             pm.register(plugin, name=ep.name)
         except (pluggy.PluginValidationError, ValueError) as exc:
             raise PluginLoadError(f"plugin '{ep.name}' ({ep.value}) is not a valid gammadot plugin: {exc}; "
                                   f"{_how_to_block(ep.name)}") from exc
+
+
+def _refuse_incompatible(name: str, plugin: object, origin: str, default: str | None = None) -> None:
+    """Stop start-up when ``plugin`` declares hook specs this gammadot does not have."""
+    from .compat import compatibility
+
+    found = compatibility(plugin, default=default)
+    if not found.compatible:
+        raise PluginLoadError(f"plugin '{name}' ({origin}) {found.problem}; install a version of the plugin "
+                              f"made for these hook specs, or {_how_to_block(name)}")

@@ -295,3 +295,19 @@ class Analysis:
     title: str
     run: Callable[[Any], AnalysisOutput | None]
     reference: str = ""
+
+
+@dataclass(frozen=True)
+class RunSection:
+    """A section a plugin adds to each run's page of the study site.
+
+    ``render(run_result)`` gets the run's :class:`~gammadot.processing.RunResult` and returns
+    an HTML fragment that is safe to insert (every text from input files escaped), or
+    ``None`` to leave the section out for that run. ``title`` is shown as the section's heading
+    (escaped by the site); sections are shown in ascending ``order``.
+    """
+
+    id: str
+    title: str
+    render: Callable[[Any], str | None]
+    order: int = 100

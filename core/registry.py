@@ -13,7 +13,7 @@ from typing import Any, Generic, TypeVar
 import pluggy
 
 from .plugin_manager import PluginLoadError
-from .records import Analysis, Check, GeometryType, Importer, Model, Writer
+from .records import Analysis, Check, GeometryType, Importer, Model, RunSection, Writer
 
 R = TypeVar("R")
 
@@ -25,6 +25,7 @@ KINDS: dict[str, tuple[str, type]] = {
     "checks": ("gammadot_checks", Check),
     "analyses": ("gammadot_analyses", Analysis),
     "writers": ("gammadot_writers", Writer),
+    "sections": ("gammadot_run_sections", RunSection),
 }
 
 
@@ -46,6 +47,7 @@ class Registry:
     checks: dict[str, Provided[Check]] = field(default_factory=dict)
     analyses: dict[str, Provided[Analysis]] = field(default_factory=dict)
     writers: dict[str, Provided[Writer]] = field(default_factory=dict)
+    sections: dict[str, Provided[RunSection]] = field(default_factory=dict)
     plugins: dict[str, str] = field(default_factory=dict)  # plugin name -> version/origin
     blocked: list[str] = field(default_factory=list)
 

@@ -4,6 +4,10 @@ Each entry is (plugin name, module). The name is what users block with
 ``--block NAME`` or ``GAMMADOT_BLOCK_PLUGINS``; the module carries ``@hookimpl`` functions.
 """
 
+# The hook-spec versions the built-in set is written for (gammadot.compat); a built-in module
+# may declare its own GAMMADOT_HOOKSPEC instead.
+BUILTIN_HOOKSPEC = ">=1,<2"
+
 BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
     ("delimited_text", "gammadot.plugins.delimited_text"),
     ("spreadsheet", "gammadot.plugins.spreadsheet"),

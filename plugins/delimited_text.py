@@ -38,6 +38,8 @@ if TYPE_CHECKING:  # numpy and pyarrow load on first read, not at start-up
     import numpy as np
     import pyarrow as pa
 
+GAMMADOT_HOOKSPEC = ">=1,<2"  # the hook-spec versions this plugin is written for (gammadot.compat)
+
 SUFFIXES: tuple[str, ...] = (".csv", ".txt", ".tsv", ".dat")
 DELIMITERS: tuple[str, ...] = ("\t", ";", ",")
 # Cells read as a missing value (NaN). Arrow's defaults minus the odd "1.#IND" spellings.

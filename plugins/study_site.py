@@ -28,6 +28,7 @@ import numpy as np
 
 from gammadot.hookspecs import hookimpl
 from gammadot.records import Writer
+from gammadot.sections import run_sections
 
 SITE_DIR = "site"
 TEMPLATE_PACKAGE = "gammadot.site_template"
@@ -562,6 +563,7 @@ def _run_context(rr: Any, result: Any, ctx: _Context) -> dict[str, Any]:
         "selected": _fit_view(selected, registry) if selected else None,
         "parameters": _parameters_view(selected, registry) if selected else [],
         "finding_groups": _finding_groups(rr, registry),
+        "sections": run_sections(rr, registry),  # sections added by plugins (hook gammadot_run_sections)
         "has_plots": bool(figures),
     }
 
