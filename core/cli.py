@@ -5,7 +5,8 @@ what it needs when it runs.
 
 Exit codes: 0 the study was processed (rejected files are listed, not fatal); 1 nothing
 usable could be produced (no run could be read, or the tables could not be written);
-2 the command line or study.toml is wrong; 3 a plugin failed to load.
+2 the command line or study.toml is wrong; 3 a plugin failed to load; 4 (watch) another
+watcher holds the inbox.
 """
 
 from __future__ import annotations
@@ -20,7 +21,7 @@ if TYPE_CHECKING:
     from .pipeline import StudyResult
     from .registry import Registry
 
-EXIT_OK, EXIT_NOTHING_USABLE, EXIT_CONFIG, EXIT_PLUGIN = 0, 1, 2, 3
+EXIT_OK, EXIT_NOTHING_USABLE, EXIT_CONFIG, EXIT_PLUGIN, EXIT_BUSY = 0, 1, 2, 3, 4
 
 _BLOCK_HELP = "Do not load the plugin NAME (repeatable); see `gammadot plugins` for names."
 
@@ -63,23 +64,44 @@ def run_command(study: Path, out: Path | None, quiet: bool, block: tuple[str, ..
 
 
 def run_study(study: Path, out: Path | None, *, quiet: bool = False, block: tuple[str, ...] = ()) -> int:
-    """Process and write one study; returns the exit code (see module docstring)."""
+    """Process and write one study; returns the exit code (see module docstring).
+
+    Files seen before are reused from the output folder's cache; the outputs become a new
+    version of the output folder, switched atomically (README, "Outputs and versions").
+    """
+    from .cache import open_cache
     from .config import StudyConfigError
-    from .pipeline import default_out_dir, process_study, write_outputs
+    from .fingerprint import code_fingerprint
+    from .pipeline import default_out_dir, process_study
+    from .study_output import write_study_version
+    from .versioned import VersionError
 
     registry = _registry(block)
     out_dir = out or default_out_dir(study)
+    code = code_fingerprint(registry)
+    cache, problem = open_cache(out_dir, registry, code=code)
+    if cache is None:
+        click.echo(f"gammadot: the run cache is off: {problem}", err=True)
     try:
         with _progress(quiet) as progress:
-            result = process_study(study, registry, out_dir=out_dir, progress=progress)
+            result = process_study(study, registry, out_dir=out_dir, progress=progress, cache=cache)
     except StudyConfigError as exc:
         click.echo(f"gammadot: {study / 'study.toml'}: {exc}", err=True)
         return EXIT_CONFIG
-    write_outputs(result, out_dir, on_failure=lambda f: click.echo(
-        f"gammadot: writer '{f.writer}' (plugin {f.plugin}) failed: {f.message}", err=True))
+    try:
+        committed = write_study_version(result, out_dir, code=code, on_failure=lambda f: click.echo(
+            f"gammadot: writer '{f.writer}' (plugin {f.plugin}) failed: {f.message}", err=True))
+    except (VersionError, OSError) as exc:
+        click.echo(f"gammadot: {out_dir}: outputs not written: {exc}", err=True)
+        return EXIT_NOTHING_USABLE
+    if cache is not None:
+        cache.prune()
+        if not quiet:
+            click.echo(f"cache: {cache.stats.hits} of {len(result.files)} files reused")
     _report(result, out_dir, quiet)
-    tables_failed = any(f.writer == "parquet_tables" for f in result.writer_failures)
-    return EXIT_NOTHING_USABLE if not result.runs or tables_failed else EXIT_OK
+    if committed is None:
+        click.echo(f"gammadot: {out_dir}: the previous output was kept (the tables could not be written)", err=True)
+    return EXIT_NOTHING_USABLE if not result.runs or committed is None else EXIT_OK
 
 
 class _progress:
@@ -171,6 +193,83 @@ def plugins_command(block: tuple[str, ...], check: bool) -> None:
             click.echo(f"    {kind}: {', '.join(ids)}")
     for name in registry.blocked:
         click.echo(f"{name}  (blocked)")
+
+
+# Commands for gammadot's own formats and for plugin authors (module cli_kit).
+from .cli_kit import export_command, new_plugin_command, schema_command  # noqa: E402
+
+for _command in (schema_command, export_command, new_plugin_command):
+    main.add_command(_command)
+
+
+@main.command("watch")
+@click.argument("inbox", type=click.Path(exists=True, file_okay=False, path_type=Path))
+@click.option("--publish", "publish_dir", type=click.Path(file_okay=False, path_type=Path), metavar="DIR",
+              help="Also copy each study's outputs to DIR/<study> (atomically) and list the studies in DIR/index.html.")
+@click.option("--poll", type=click.FloatRange(min=0.05), metavar="SECONDS",
+              help="Look for changes every SECONDS instead of waiting for file-system events "
+                   "(for network shares, where events often do not arrive).")
+@click.option("--settle", type=click.FloatRange(min=0.0), default=2.0, show_default=True, metavar="SECONDS",
+              help="A file is read only after its size and time stayed the same this long.")
+@click.option("--max-wait", type=click.FloatRange(min=0.0), default=60.0, show_default=True, metavar="SECONDS",
+              help="When files of a study keep changing longer than this, process the stable ones.")
+@click.option("--rescan", type=click.FloatRange(min=0.1), default=60.0, show_default=True, metavar="SECONDS",
+              help="Look at every study this often even without events.")
+@click.option("--block", multiple=True, metavar="NAME", help=_BLOCK_HELP)
+def watch_command(inbox: Path, publish_dir: Path | None, poll: float | None, settle: float, max_wait: float,
+                  rescan: float, block: tuple[str, ...]) -> None:
+    """Keep the studies in INBOX up to date as exports arrive, change or go.
+
+    A study is a folder directly inside INBOX that holds a study.toml; its outputs go to
+    STUDY/_gammadot as with `gammadot run`. Input files are only read: never moved, renamed
+    or deleted. Logs one JSON line per event on stderr. Stops cleanly on Ctrl-C or SIGTERM.
+    """
+    import signal
+
+    from .eventlog import EventLog
+    from .watch import InboxWatcher, WatcherBusy, WatchSettings
+
+    registry = _registry(block)
+    settings = WatchSettings(inbox=inbox, publish_dir=publish_dir, poll=poll, settle=settle,
+                             max_wait=max_wait, rescan=rescan)
+    log = EventLog()
+    watcher = InboxWatcher(settings, registry, log)
+
+    def stop(signum: int, _frame: object) -> None:
+        log.info("stop_requested", signal=signal.Signals(signum).name)
+        watcher.request_stop()
+
+    previous = {sig: signal.signal(sig, stop) for sig in (signal.SIGINT, signal.SIGTERM)}
+    try:
+        watcher.run()
+    except WatcherBusy as exc:
+        log.error("watch_busy", message=str(exc))
+        click.echo(f"gammadot: {exc}", err=True)
+        sys.exit(EXIT_BUSY)
+    finally:
+        for sig, handler in previous.items():
+            signal.signal(sig, handler)
+    sys.exit(EXIT_OK)
+
+
+@main.command("publish")
+@click.argument("study_out", type=click.Path(exists=True, file_okay=False, path_type=Path))
+@click.argument("directory", type=click.Path(file_okay=False, path_type=Path))
+@click.option("--name", metavar="NAME", help="Folder name under DIRECTORY (default: the study folder's name).")
+def publish_command(study_out: Path, directory: Path, name: str | None) -> None:
+    """Publish a processed study: copy the current output of STUDY_OUT (e.g.
+    my-study/_gammadot) to DIRECTORY/<study> and switch to it in one step, so that readers
+    see the previous report or the new one, never a mix. DIRECTORY/index.html lists every
+    study published there."""
+    from .publish import PublishError, publish_study, published_summary
+    from .versioned import VersionError
+
+    try:
+        outcome = publish_study(study_out, directory, name=name)
+    except (PublishError, VersionError, OSError) as exc:
+        click.echo(f"gammadot: {exc}", err=True)
+        sys.exit(EXIT_NOTHING_USABLE)
+    click.echo(published_summary(outcome))
 
 
 # Commands for gammadot's own formats and for plugin authors (module cli_kit).

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Callable, Protocol
+from typing import TYPE_CHECKING, Callable, Protocol, Sequence
 
 from .config import StudyConfig, load_study_config
 from .discovery import find_input_files
@@ -17,6 +17,9 @@ from .importing import FileOutcome, RejectedFile, import_file
 from .processing import RunResult, process_run
 from .records import AnalysisOutput, Finding
 from .registry import Registry
+
+if TYPE_CHECKING:
+    from .cache import RunCache
 
 DEFAULT_OUT = "_gammadot"
 
@@ -72,19 +75,32 @@ def default_out_dir(study_dir: Path) -> Path:
 
 
 def process_study(study_dir: Path, registry: Registry, *, out_dir: Path | None = None,
-                  progress: Progress | None = None) -> StudyResult:
-    """Import and process every export below ``study_dir``; raises only for a bad study.toml."""
+                  progress: Progress | None = None, cache: "RunCache | None" = None,
+                  paths: Sequence[Path] | None = None) -> StudyResult:
+    """Import and process every export below ``study_dir``; raises only for a bad study.toml.
+
+    ``cache`` reuses files imported and processed before (:mod:`gammadot.cache`); ``paths``
+    limits the study to these files (the watcher leaves out files still being written).
+    """
     progress = progress or _NoProgress()
     config = load_study_config(study_dir, registry)
-    suffixes = [s for p in registry.importers.values() for s in p.record.suffixes]
-    paths = find_input_files(study_dir, out_dir or default_out_dir(study_dir), suffixes)
+    if paths is None:
+        suffixes = [s for p in registry.importers.values() for s in p.record.suffixes]
+        paths = find_input_files(study_dir, out_dir or default_out_dir(study_dir), suffixes)
     result = StudyResult(study_dir=study_dir, config=config, registry=registry)
     progress.start(len(paths))
     for path in paths:
         rel = path.relative_to(study_dir).as_posix()
-        outcome = import_file(path, rel, registry, config)
+        cached = cache.get(path, rel, config) if cache is not None else None
+        if cached is not None:
+            outcome, processed = cached
+        else:
+            outcome = import_file(path, rel, registry, config)
+            processed = [process_run(run, config, registry) for run in outcome.runs]
+            if cache is not None:
+                cache.put(rel, config, outcome, processed)
         result.files.append(outcome)
-        result.runs.extend(process_run(run, config, registry) for run in outcome.runs)
+        result.runs.extend(processed)
         progress.advance(rel)
     _dedupe_run_ids(result.runs)
     run_analyses(result)

@@ -17,5 +17,6 @@ BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
     ("basic_models", "gammadot.plugins.basic_models"),
     ("basic_checks", "gammadot.plugins.basic_checks"),
     ("parquet_tables", "gammadot.plugins.parquet_tables"),
+    ("rejected_list", "gammadot.plugins.rejected_list"),
     ("study_site", "gammadot.plugins.study_site"),
 )
