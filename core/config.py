@@ -11,9 +11,10 @@ import difflib
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, Mapping
+from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 from .datamodel import QUANTITIES
+from .records import CheckSetting
 from .units import DIMENSIONS, UnitError, parse_quantity
 
 if TYPE_CHECKING:
@@ -192,13 +193,52 @@ def _fit(table: Mapping[str, Any], registry: "Registry", source: str) -> FitConf
 
 
 def _checks(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, Mapping[str, Any]]:
+    """``[checks.<id>]`` of installed checks and analyses: known keys only, quantities in SI."""
+    declared = {**{i: p.record.settings for i, p in registry.analyses.items()},
+                **{i: p.record.settings for i, p in registry.checks.items()}}
+    parsed: dict[str, Mapping[str, Any]] = {}
     for check_id, settings in table.items():
-        if check_id not in registry.checks:
+        if check_id not in declared:
+            close = difflib.get_close_matches(check_id, list(declared), n=1)
+            hint = f"did you mean '{close[0]}'? " if close else ""
             raise StudyConfigError(f"{source}: [checks.{check_id}] is not an installed check "
-                                   f"(installed: {', '.join(registry.checks)})")
+                                   f"({hint}installed: {', '.join(declared)})")
         if not isinstance(settings, Mapping):
             raise StudyConfigError(f"{source}: [checks.{check_id}] must be a table")
-    return {k: dict(v) for k, v in table.items()}
+        parsed[check_id] = _check_values(settings, declared[check_id], f"[checks.{check_id}]", source)
+    return parsed
+
+
+_ALWAYS_ALLOWED = ("enabled", "exclude")  # every check: switch it off, keep its points in the fit
+
+
+def _check_values(settings: Mapping[str, Any], declared: Sequence[CheckSetting], where: str,
+                  source: str) -> dict[str, Any]:
+    by_name = {s.name: s for s in declared}
+    _reject_unknown(settings, _ALWAYS_ALLOWED + tuple(by_name), f"{where} ", source)
+    values: dict[str, Any] = {}
+    for key, raw in settings.items():
+        setting = by_name.get(key)
+        if setting is None or setting.dimension == "boolean":
+            if not isinstance(raw, bool):
+                raise StudyConfigError(f"{source}: {where} {key} must be true or false")
+            values[key] = raw
+            continue
+        values[key] = _quantity(raw, setting.dimension, f"{where} {key}", source)
+        if setting.minimum is not None and values[key] < setting.minimum:
+            raise StudyConfigError(f"{source}: {where} {key} = {raw!r} is below the smallest allowed value "
+                                   f"{setting.minimum:g} {dimension_label(setting.dimension)}")
+    return values
+
+
+def check_settings(config: StudyConfig, check_id: str, declared: Sequence[CheckSetting]) -> dict[str, Any]:
+    """A check's settings for a study: ``enabled``/``exclude`` and every declared setting,
+    the study's value (SI) where ``[checks.<id>]`` sets one, else the declared default."""
+    given = config.checks.get(check_id, {})
+    values: dict[str, Any] = {"enabled": True, "exclude": True}
+    values.update({s.name: s.default for s in declared})
+    values.update(given)
+    return values
 
 
 def _specs(entries: Any, source: str) -> tuple[Mapping[str, Any], ...]:

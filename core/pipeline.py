@@ -111,6 +111,8 @@ def run_analyses(result: StudyResult) -> None:
     """Run every study-level analysis; attach its findings to the runs they name."""
     by_id = {r.run.run_id: r for r in result.runs}
     for analysis_id, provided in result.registry.analyses.items():
+        if result.config.checks.get(analysis_id, {}).get("enabled", True) is False:
+            continue  # switched off in study.toml ([checks.<id>] enabled = false)
         try:
             output = provided.record.run(result)
         except Exception as exc:  # one analysis failing never stops the study

@@ -6,11 +6,11 @@ a failed fit) naming the plugin, and the run and the study go on.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .config import GeometryConfig, StudyConfig
+from .config import GeometryConfig, StudyConfig, check_settings
 from .datamodel import Run
 from .fitting import FitResult, failed_fit, fit_model, select_model
 from .records import CheckContext, Conversion, Finding, Result
@@ -102,22 +102,25 @@ def run_checks(result: "RunResult", config: StudyConfig, registry: Registry, *, 
     becomes an error finding naming its plugin.
     """
     context_fits = tuple(result.fits)
+    models = {model_id: p.record for model_id, p in registry.models.items()}
+    excluded_before = result.excluded.copy()  # every check of a stage sees the same exclusions
     for check_id, provided in registry.checks.items():
         if provided.record.after_fit is not after_fit:
             continue
-        settings = config.checks.get(check_id, {})
-        if settings.get("enabled", True) is False:
+        settings = check_settings(config, check_id, provided.record.settings)
+        if settings["enabled"] is False:
             continue
-        context = CheckContext(study=config, settings=settings, geometry=result.geometry, fits=context_fits)
+        context = CheckContext(study=config, settings=settings, geometry=result.geometry, fits=context_fits,
+                               excluded=excluded_before, models=models)
         try:
             found = list(provided.record.run(result.run, context))
         except Exception as exc:
             result.findings.append(Finding(check_id, "error", f"check plugin '{provided.plugin}' failed: "
                                                               f"{type(exc).__name__}: {exc}"))
             continue
-        keep_in_fit = after_fit or settings.get("exclude", True) is False
+        keep_in_fit = after_fit or settings["exclude"] is False
         for f in found:
-            _record(result, Finding(f.check, f.severity, f.message, f.point_index, f.exclude and not keep_in_fit))
+            _record(result, replace(f, exclude=f.exclude and not keep_in_fit))
 
 
 def _record(result: "RunResult", finding: Finding) -> None:

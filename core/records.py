@@ -203,7 +203,9 @@ class Model:
 class Finding:
     """One result of a check: for a point (``point_index``) or for the run (``None``).
 
-    ``exclude`` marks the point as kept out of fits (it stays in the tables).
+    ``exclude`` marks the point as kept out of fits (it stays in the tables). ``value`` and
+    ``unit`` carry the number behind the finding when there is one (a Reynolds number, a
+    hysteresis loop area in Pa/s), SI, so checks.parquet can be queried by it.
     """
 
     check: str
@@ -211,6 +213,25 @@ class Finding:
     message: str
     point_index: int | None = None
     exclude: bool = False
+    value: float | None = None
+    unit: str = ""
+
+
+@dataclass(frozen=True)
+class CheckSetting:
+    """A threshold a check (or analysis) reads from ``[checks.<id>]`` in ``study.toml``.
+
+    ``dimension`` is a key of :data:`gammadot.units.DIMENSIONS` (the value is written with
+    its unit, ``"10 %"``, ``"5 s"``; a bare number is SI) or ``"boolean"``. ``default`` is SI
+    (``None``: not set unless the study sets it); ``minimum`` (SI) is the smallest value
+    accepted. The check gets the parsed value, or the default, in ``context.settings``.
+    """
+
+    name: str
+    dimension: str
+    default: float | bool | None
+    description: str
+    minimum: float | None = None
 
 
 @dataclass(frozen=True)
@@ -218,14 +239,19 @@ class CheckContext:
     """What a check may read besides the run.
 
     ``study``: the study config (density, limits...); ``settings``: the check's own
-    ``[checks.<id>]`` table; ``geometry``: the run's geometry (``None`` for instrument values);
-    ``fits``: the run's fits (empty before fitting; after-fit checks see them all).
+    ``[checks.<id>]`` values (SI), with the defaults of its declared settings filled in;
+    ``geometry``: the run's geometry (``None`` for instrument values); ``fits``: the run's fits
+    (empty before fitting; after-fit checks see them all); ``excluded``: one bool per point,
+    true for points kept out of fits by the checks before this stage (``None``: not known);
+    ``models``: the installed models by id (after-fit checks evaluate the selected one).
     """
 
     study: "StudyConfig"
     settings: Mapping[str, Any] = field(default_factory=dict)
     geometry: "GeometryConfig | None" = None
     fits: tuple[Any, ...] = ()
+    excluded: "np.ndarray | None" = None
+    models: Mapping[str, "Model"] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -235,7 +261,7 @@ class Check:
     ``run(run, context)`` returns findings; a point finding with ``exclude=True`` keeps the
     point out of fits. ``reference`` cites the physics or practice behind the check.
     ``after_fit=True`` runs the check after fitting (it sees ``context.fits``); its findings
-    only flag points (no refit).
+    only flag points (no refit). ``settings`` declares the thresholds ``[checks.<id>]`` may set.
     """
 
     id: str
@@ -244,6 +270,7 @@ class Check:
     run: Callable[["Run", CheckContext], Sequence[Finding]]
     reference: str = ""
     after_fit: bool = False
+    settings: tuple[CheckSetting, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -288,13 +315,15 @@ class Analysis:
 
     ``run(result)`` gets the :class:`~gammadot.pipeline.StudyResult` after every run was
     processed and returns an :class:`AnalysisOutput` (or ``None`` when it does not apply).
-    It never replaces measured data; its tables stand beside them.
+    It never replaces measured data; its tables stand beside them. ``settings`` declares the
+    values ``[checks.<id>]`` may set (read them with :func:`gammadot.config.check_settings`).
     """
 
     id: str
     title: str
     run: Callable[[Any], AnalysisOutput | None]
     reference: str = ""
+    settings: tuple[CheckSetting, ...] = ()
 
 
 @dataclass(frozen=True)

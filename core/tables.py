@@ -195,6 +195,8 @@ def checks_table(result: "StudyResult") -> pa.Table:
         "check": ([f.check for _, f in rows], pa.string(), None),
         "severity": ([f.severity for _, f in rows], pa.string(), None),
         "message": ([f.message for _, f in rows], pa.string(), None),
+        "value": ([f.value for _, f in rows], pa.float64(), None),  # unit per row: next column
+        "unit": ([f.unit or None for _, f in rows], pa.string(), None),
     })
 
 

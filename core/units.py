@@ -42,6 +42,7 @@ DIMENSIONS: dict[str, Dimension] = {
     "frequency": Dimension("rate", "1 / [time]", "1/s", "1/s"),
     "force": Dimension("force", "[mass] * [length] / [time] ** 2", "N", "N"),
     "temperature": Dimension("temperature", "[temperature]", "degC", "°C"),
+    "temperature_difference": Dimension("temperature difference", "[temperature]", "delta_degC", "K"),
     "pressure": Dimension("stress", "[mass] / [length] / [time] ** 2", "Pa", "Pa"),
     "viscosity": Dimension("viscosity", "[mass] / [length] / [time]", "Pa*s", "Pa·s"),
     "length": Dimension("length", "[length]", "m", "m"),
@@ -49,6 +50,9 @@ DIMENSIONS: dict[str, Dimension] = {
     "dimensionless": Dimension("pure number", "", "dimensionless", "1"),
     "density": Dimension("density", "[mass] / [length] ** 3", "kg/m**3", "kg/m³"),
 }
+
+# A temperature *difference* written in degrees: a step of the scale, without its offset.
+_DEGREE_STEPS = {"degc": "delta_degC", "c": "delta_degC", "degf": "delta_degF", "f": "delta_degF"}
 
 _SUPERSCRIPTS = str.maketrans({"⁻": "-", "¹": "1", "²": "2", "³": "3", "⁰": "0"})
 
@@ -83,6 +87,8 @@ def _candidates(text: str, dimension: str) -> list[str]:
     base = _base_cleanup(text)
     low = base.lower()
     found = []
+    if dimension == "temperature_difference" and low in _DEGREE_STEPS:
+        found.append(_DEGREE_STEPS[low])  # "1 °C" as a difference is 1 K, not 274.15 K
     if dimension == "angular_velocity" and low in ("rpm", "1/min", "min**-1", "u/min", "r/min", "rev/min"):
         found.append("rpm")  # common practice: speed "1/min" means revolutions per minute
     found.append(base)
