@@ -44,9 +44,19 @@ class GeometryConfig:
 
 @dataclass(frozen=True)
 class FitConfig:
-    """``[fit]``: which models to fit (``None``: every installed model)."""
+    """``[fit]``: which models to fit (``None``: every installed model), the objective and the
+    shear rates (1/s) at which viscosities are reported.
+
+    ``space``/``weights``/``loss``/``loss_scale`` mean what they mean in
+    :class:`gammadot.least_squares.Objective` (values listed there and in the README).
+    """
 
     models: tuple[str, ...] | None = None
+    space: str = "log"
+    weights: str = "none"
+    loss: str = "linear"
+    loss_scale: float | None = None
+    shear_rates: tuple[float, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -67,7 +77,9 @@ class StudyConfig:
 
 _TOP_KEYS = ("study", "geometries", "columns", "fit", "checks", "spec", "limits")
 _STUDY_KEYS = ("title", "description", "density")
-_FIT_KEYS = ("models",)
+_FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates")
+_FIT_CHOICES = {"space": ("log", "linear"), "weights": ("none", "relative", "per_decade"),
+                "loss": ("linear", "soft_l1", "huber")}  # as gammadot.least_squares.Objective
 _SPEC_KEYS = ("quantity", "shear_rate", "min", "max", "name", "model", "parameter")
 _LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque"}
 
@@ -180,16 +192,38 @@ def _columns(table: Mapping[str, Any], source: str) -> dict[str, str]:
 
 def _fit(table: Mapping[str, Any], registry: "Registry", source: str) -> FitConfig:
     _reject_unknown(table, _FIT_KEYS, "[fit] ", source)
-    if "models" not in table:
-        return FitConfig()
-    models = table["models"]
-    if not isinstance(models, list) or not all(isinstance(m, str) for m in models):
-        raise StudyConfigError(f"{source}: [fit] models must be a list of model ids")
-    for model in models:
-        if model not in registry.models:
-            raise StudyConfigError(f"{source}: [fit] models: unknown model '{model}' "
-                                   f"(installed: {', '.join(registry.models)})")
-    return FitConfig(models=tuple(models))
+    models = table.get("models")
+    if models is not None:
+        if not isinstance(models, list) or not all(isinstance(m, str) for m in models):
+            raise StudyConfigError(f"{source}: [fit] models must be a list of model ids")
+        for model in models:
+            if model not in registry.models:
+                raise StudyConfigError(f"{source}: [fit] models: unknown model '{model}' "
+                                       f"(installed: {', '.join(registry.models)})")
+    choices: dict[str, str] = {}
+    for key, allowed in _FIT_CHOICES.items():
+        value = table.get(key, allowed[0])
+        if value not in allowed:
+            raise StudyConfigError(f"{source}: [fit] {key} = '{value}' is not one of {', '.join(allowed)}")
+        choices[key] = value
+    if choices["weights"] == "relative" and choices["space"] == "log":
+        raise StudyConfigError(f"{source}: [fit] weights = 'relative' needs space = 'linear' "
+                               "(log space already weighs every point by its relative deviation)")
+    loss_scale = table.get("loss_scale")
+    if loss_scale is not None and (isinstance(loss_scale, bool) or not isinstance(loss_scale, (int, float))
+                                   or not loss_scale > 0):
+        raise StudyConfigError(f"{source}: [fit] loss_scale must be a positive number "
+                               "(residual units: in log space 0.05 ≈ 5 %)")
+    rates = table.get("shear_rates", [])
+    if not isinstance(rates, list):
+        raise StudyConfigError(f"{source}: [fit] shear_rates must be a list such as [\"10 1/s\", \"100 1/s\"]")
+    shear_rates = tuple(_quantity(rate, "frequency", f"[fit] shear_rates[{i}]", source) for i, rate in enumerate(rates))
+    for i, rate in enumerate(shear_rates):
+        if not rate > 0:
+            raise StudyConfigError(f"{source}: [fit] shear_rates[{i}] must be positive")
+    return FitConfig(models=tuple(models) if models is not None else None, space=choices["space"],
+                     weights=choices["weights"], loss=choices["loss"],
+                     loss_scale=float(loss_scale) if loss_scale is not None else None, shear_rates=shear_rates)
 
 
 def _checks(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, Mapping[str, Any]]:

@@ -1,44 +1,61 @@
-"""Fitting constitutive models to one run with lmfit, in log space, and choosing among them.
+"""Fitting the constitutive models to one run, and choosing among them.
 
-Rheological data span decades with roughly constant *relative* error, so residuals are
-taken in natural-log space: r_i = ln f(γ̇_i; p) − ln y_i. ``rmse_log`` is the RMS of these
-residuals (≈ the typical relative deviation). Model choice uses the small-sample Akaike
-criterion (AICc; Hurvich & Tsai, Biometrika 76 (1989) 297, doi:10.1093/biomet/76.2.297):
-the lowest AICc wins, except that the model with the fewest parameters whose AICc lies
-within 2 of the lowest is preferred (ΔAICc ≤ 2 means comparable support; Burnham &
-Anderson, *Model Selection and Multimodel Inference*, 2nd ed. 2002, §2.6).
+For each model: data-driven starts from the model's ``guess`` (a global stage where the model
+needs one), Levenberg–Marquardt from each start (:mod:`gammadot.least_squares`), standard
+errors and correlations from the covariance, the identifiability rule
+(:mod:`gammadot.identifiability`), AICc and BIC (:mod:`gammadot.model_selection`).
+
+The objective (:class:`~gammadot.least_squares.Objective`, study.toml ``[fit]``) is, by default,
+least squares of ln(value): every point counts by its relative deviation. ``rmse_log`` is always
+the RMS of the natural-log residuals ln f(γ̇_i) − ln y_i of the fitted points (≈ the typical
+relative deviation), whatever the objective. In ``space = "linear"`` every model is compared on
+shear stress in Pa (a viscosity model through τ = η·γ̇), so the criteria of all models stay
+comparable.
 """
 
 from __future__ import annotations
 
-import functools
 import math
-from dataclasses import dataclass, replace
-from typing import Callable, Sequence
+from dataclasses import dataclass, field
+from typing import Mapping
 
 import numpy as np
 
+from .identifiability import Profile, assess
+from .least_squares import CurveFit, Objective, fit_curve
+from .model_selection import information_criteria, select_model
 from .records import Model
 
-AICC_TOLERANCE = 2.0
+__all__ = ["FitResult", "ParameterEstimate", "failed_fit", "fit_model", "select_model"]
 
 
 @dataclass(frozen=True)
 class ParameterEstimate:
     """A fitted parameter: value and standard error in the parameter's SI unit.
 
-    ``value``/``stderr`` are ``None`` when the fit failed or the data cannot determine them.
+    ``value``/``stderr`` are ``None`` when the fit failed or the data cannot determine the
+    parameter; ``note`` then says why ("" otherwise).
     """
 
     name: str
     value: float | None
     stderr: float | None
     unit: str
+    note: str = ""
 
 
 @dataclass(frozen=True)
 class FitResult:
-    """One model fitted to one run (columns of fits.parquet plus the parameters)."""
+    """One model fitted to one run (columns of fits.parquet plus the parameters).
+
+    ``best_fit`` holds the least-squares value of *every* parameter, identified or not: it is
+    what curves and predictions inside the measured range use. ``covariance`` (order of
+    ``best_fit``) has NaN rows for parameters without a standard error; ``fixed`` names the
+    parameters that stopped at a bound (held fixed in error propagation).
+    ``correlations`` are (parameter, parameter, correlation coefficient) for every pair of
+    parameters with standard errors. ``supported``: every parameter is identified or vanishes
+    (:mod:`gammadot.identifiability`); the selection prefers supported fits.
+    """
 
     model: str
     success: bool
@@ -51,21 +68,19 @@ class FitResult:
     shear_rate_max: float | None
     parameters: tuple[ParameterEstimate, ...] = ()
     selected: bool = False
+    correlations: tuple[tuple[str, str, float], ...] = ()
+    best_fit: Mapping[str, float] = field(default_factory=dict)
+    covariance: np.ndarray | None = field(default=None, compare=False, repr=False)
+    fixed: tuple[str, ...] = ()
+    supported: bool = True
 
     def value(self, name: str) -> float | None:
-        """The fitted value of parameter ``name`` (``None`` if absent or undetermined)."""
+        """The fitted value of parameter ``name`` (``None`` if absent or not identified)."""
         return next((p.value for p in self.parameters if p.name == name), None)
 
-
-def _log_of(function: Callable[..., np.ndarray]) -> Callable[..., np.ndarray]:
-    """Wrap a model function so it returns ln f; the signature (lmfit reads it) is kept."""
-
-    @functools.wraps(function)
-    def log_function(shear_rate: np.ndarray, **params: float) -> np.ndarray:
-        with np.errstate(divide="ignore", invalid="ignore"):
-            return np.log(function(shear_rate, **params))
-
-    return log_function
+    def estimate(self, name: str) -> ParameterEstimate | None:
+        """The :class:`ParameterEstimate` of parameter ``name``."""
+        return next((p for p in self.parameters if p.name == name), None)
 
 
 def failed_fit(model: Model, n_points: int, message: str) -> FitResult:
@@ -74,57 +89,72 @@ def failed_fit(model: Model, n_points: int, message: str) -> FitResult:
     return FitResult(model.id, False, n_points, None, None, None, message, None, None, params)
 
 
-def fit_model(model: Model, shear_rate: np.ndarray, values: np.ndarray) -> FitResult:
-    """Fit ``model`` to (shear rate 1/s, target values in SI) by least squares in log space.
+def fit_model(model: Model, shear_rate: np.ndarray, values: np.ndarray,
+              objective: Objective = Objective()) -> FitResult:
+    """Fit ``model`` to (shear rate 1/s, its target values in SI) with ``objective``.
 
     Points that are not finite and positive in both arrays are ignored. Returns a failed
-    :class:`FitResult` (never raises for bad data) when fewer points than parameters + 1.
+    :class:`FitResult` (never raises for bad data) when there are not more points than
+    parameters; exceptions from the model's own functions propagate (the caller names the plugin).
     """
-    import lmfit
-
+    shear_rate, values = np.asarray(shear_rate, float), np.asarray(values, float)
     keep = np.isfinite(shear_rate) & np.isfinite(values) & (shear_rate > 0) & (values > 0)
     x, y = shear_rate[keep], values[keep]
     k = len(model.parameters)
     if len(x) < k + 1:
         return failed_fit(model, len(x), f"too few usable points ({len(x)}) for {k} parameters")
-    lmodel = lmfit.Model(_log_of(model.function), independent_vars=["shear_rate"])
-    params = lmodel.make_params()
-    start = model.guess(x, y)
-    for spec in model.parameters:
-        params[spec.name].set(value=float(start[spec.name]), min=spec.min, max=spec.max)
-    result = lmodel.fit(np.log(y), params, shear_rate=x)
-    return _summarise(model, result, x)
+    starts = model.guess(x, y)
+    on_stress = objective.space == "linear" and model.target == "viscosity"
+    y_fit, factor = (y * x, x) if on_stress else (y, None)
+    curve = fit_curve(model, x, y_fit, starts, objective, factor=factor)
+
+    def profile(name: str, value: float) -> float:
+        """Residual sum of squares with ``name`` held at ``value``, the others refitted."""
+        start = {n: float(v) for n, v in zip(curve.names, curve.values)}
+        start[name] = value
+        return fit_curve(model, x, y_fit, start, objective, factor=factor, fixed={name: value}).rss
+
+    return summarise(model, curve, x, y, profile)
 
 
-def _summarise(model: Model, result: "object", x: np.ndarray) -> FitResult:
-    n = len(x)
-    k = result.nvarys  # type: ignore[attr-defined]
-    residual = np.asarray(result.residual, dtype=float)  # type: ignore[attr-defined]
-    if not np.all(np.isfinite(residual)):
-        return failed_fit(model, n, "model gives non-positive or undefined values at the data")
-    aicc = result.aic + 2 * k * (k + 1) / (n - k - 1) if n - k - 1 > 0 else math.inf  # type: ignore[attr-defined]
+def summarise(model: Model, curve: CurveFit, x: np.ndarray, y: np.ndarray,
+              profile: Profile | None = None) -> FitResult:
+    """The run-level record of a curve fit: criteria, rmse_log, identified parameters
+    (``profile`` refits with one parameter held, for the identifiability rule)."""
+    n, k = len(x), len(model.parameters)
+    best = {name: float(v) for name, v in zip(curve.names, curve.values)}
+    with np.errstate(all="ignore"):
+        log_residual = np.log(np.asarray(model.function(x, **best), dtype=float)) - np.log(y)
+    if not curve.success:
+        return _without_parameters(model, n, x, f"did not converge: {curve.message}")
+    if not np.all(np.isfinite(log_residual)):
+        return _without_parameters(model, n, x, "the model gives non-positive or undefined values at the data")
+    aicc, bic = information_criteria(curve.rss, n, k)
+    verdicts = assess(curve, model.parameters, profile)
     estimates = tuple(
-        ParameterEstimate(p.name, float(result.params[p.name].value),  # type: ignore[attr-defined]
-                          _finite_or_none(result.params[p.name].stderr), p.unit)  # type: ignore[attr-defined]
-        for p in model.parameters)
-    message = str(result.message)  # type: ignore[attr-defined]
-    if any(e.stderr is None for e in estimates):
-        message += "; standard errors could not be estimated"
-    return FitResult(model.id, bool(result.success), n, float(aicc), float(result.bic),  # type: ignore[attr-defined]
-                     float(np.sqrt(np.mean(residual ** 2))), message,
-                     float(x.min()), float(x.max()), estimates)
+        ParameterEstimate(spec.name, best[spec.name], float(curve.stderr[j]), spec.unit)
+        if verdict.reason is None else
+        ParameterEstimate(spec.name, None, None, spec.unit, f"not identified: {verdict.reason}")
+        for j, (spec, verdict) in enumerate(zip(model.parameters, verdicts)))
+    notes = [f"{spec.name} not identified: {v.reason}" for spec, v in zip(model.parameters, verdicts) if v.reason]
+    supported = all(v.reason is None or v.vanishes for v in verdicts)
+    if not math.isfinite(aicc):
+        notes.append(f"AICc needs more than {k + 2} points: not considered for selection")
+    return FitResult(
+        model.id, True, n, aicc, bic, float(np.sqrt(np.mean(log_residual ** 2))),
+        "; ".join(["converged", *notes]), float(x.min()), float(x.max()), estimates,
+        correlations=_correlations(curve), best_fit=best, covariance=curve.covariance,
+        fixed=tuple(name for name, at in zip(curve.names, curve.at_bound) if at), supported=supported)
 
 
-def _finite_or_none(value: float | None) -> float | None:
-    return float(value) if value is not None and np.isfinite(value) else None
+def _without_parameters(model: Model, n: int, x: np.ndarray, message: str) -> FitResult:
+    failed = failed_fit(model, n, message)
+    return FitResult(failed.model, False, n, None, None, None, message, float(x.min()), float(x.max()),
+                     failed.parameters)
 
 
-def select_model(fits: Sequence[FitResult], n_parameters: dict[str, int]) -> list[FitResult]:
-    """Mark the selected fit (rule in the module docstring); return fits in the same order."""
-    usable = [f for f in fits if f.success and f.aicc is not None and math.isfinite(f.aicc)]
-    if not usable:
-        return list(fits)
-    best = min(f.aicc for f in usable)  # type: ignore[type-var]
-    close = [f for f in usable if f.aicc <= best + AICC_TOLERANCE]  # type: ignore[operator]
-    chosen = min(close, key=lambda f: (n_parameters[f.model], f.aicc))
-    return [replace(f, selected=f is chosen) for f in fits]
+def _correlations(curve: CurveFit) -> tuple[tuple[str, str, float], ...]:
+    matrix = curve.correlation().tolist()
+    names = curve.names
+    return tuple((names[i], names[j], min(1.0, max(-1.0, matrix[i][j])))
+                 for i in range(len(names)) for j in range(i + 1, len(names)) if math.isfinite(matrix[i][j]))

@@ -1,4 +1,4 @@
-"""Processing one run: geometry conversion, checks, model fits. Pure computation, no files.
+"""Processing one run: geometry conversion, checks, model fits, derived results. Pure computation.
 
 Every plugin call is wrapped: a geometry, check or model that raises becomes a finding (or
 a failed fit) naming the plugin, and the run and the study go on.
@@ -10,9 +10,12 @@ from dataclasses import dataclass, field, replace
 
 import numpy as np
 
-from .config import GeometryConfig, StudyConfig, check_settings
+from .config import FitConfig, GeometryConfig, StudyConfig, check_settings
 from .datamodel import Run
-from .fitting import FitResult, failed_fit, fit_model, select_model
+from .derived_results import derived_results
+from .fitting import FitResult, failed_fit, fit_model
+from .least_squares import Objective
+from .model_selection import select_model
 from .records import CheckContext, Conversion, Finding, Result
 from .registry import Provided, Registry
 
@@ -131,24 +134,41 @@ def _record(result: "RunResult", finding: Finding) -> None:
         result.excluded[index] |= finding.exclude
 
 
+def objective_of(config: FitConfig) -> Objective:
+    """The least-squares objective a study's ``[fit]`` table asks for."""
+    return Objective(config.space, config.weights, config.loss, config.loss_scale)
+
+
 def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
     """Fit every selected model to the run's included points and mark the selected one."""
     model_ids = config.fit.models or tuple(registry.models)
+    objective = objective_of(config.fit)
     rate = run.columns.get("shear_rate")
     fits = []
     for model_id in model_ids:
         provided = registry.models[model_id]
         model = provided.record
-        if rate is None:
-            fits.append(failed_fit(model, 0, "no shear rate"))
-            continue
         target = run.columns.get(model.target)
+        if rate is None or target is None:
+            missing = "shear rate" if rate is None else model.target.replace("_", " ")
+            fits.append(failed_fit(model, 0, f"no {missing}"))
+            continue
         try:
-            fits.append(fit_model(model, rate[~excluded], target[~excluded]))
+            fits.append(fit_model(model, rate[~excluded], target[~excluded], objective))
         except Exception as exc:
             fits.append(failed_fit(model, int((~excluded).sum()),
                                    f"model plugin '{provided.plugin}' failed: {type(exc).__name__}: {exc}"))
     return select_model(fits, {m: len(registry.models[m].record.parameters) for m in model_ids})
+
+
+def run_derived_results(run: Run, excluded: np.ndarray, fits: list[FitResult], config: StudyConfig,
+                        registry: Registry) -> list[Result]:
+    """Viscosities at the requested rates, zero-shear viscosity, yield stress, flow index."""
+    rate, viscosity = run.columns.get("shear_rate"), run.columns.get("viscosity")
+    if rate is None or viscosity is None:
+        return []
+    models = {model_id: provided.record for model_id, provided in registry.models.items()}
+    return derived_results(rate[~excluded], viscosity[~excluded], fits, models, config.fit.shear_rates)
 
 
 def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
@@ -166,5 +186,10 @@ def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
     result.results.extend(conversion.results)
     run_checks(result, config, registry, after_fit=False)
     result.fits = fit_run(run, result.excluded, config, registry)
+    try:
+        result.results.extend(run_derived_results(run, result.excluded, result.fits, config, registry))
+    except Exception as exc:  # a model plugin's function failing here must not stop the run
+        result.findings.append(Finding("fit.derived", "error", f"derived results could not be computed: "
+                                                                f"{type(exc).__name__}: {exc}"))
     run_checks(result, config, registry, after_fit=True)
     return result

@@ -169,13 +169,22 @@ class GeometryType:
 
 @dataclass(frozen=True)
 class ModelParameter:
-    """A model parameter: contract name, SI unit, bounds and a one-line meaning."""
+    """A model parameter: contract name, SI unit, bounds and a one-line meaning.
+
+    ``when_unidentified`` is the usual reason the data cannot determine it (shown in the fit's
+    message when they cannot). ``log_scale=True`` (a parameter > 0, such as a viscosity, a time
+    constant or an exponent) makes the engine fit ln(value). A parameter with ``min=0`` and no
+    ``log_scale`` may be exactly 0, and 0 must then mean the simpler model (a yield stress, η∞):
+    the identifiability rule reports it as consistent with 0 rather than over-fitted.
+    """
 
     name: str
     unit: str
     min: float = float("-inf")
     max: float = float("inf")
     description: str = ""
+    when_unidentified: str = ""  # the usual reason the data cannot fix it, for messages
+    log_scale: bool = False  # positive, spans decades, never exactly 0: fitted as ln(value)
 
 
 @dataclass(frozen=True)
@@ -185,8 +194,12 @@ class Model:
     ``function(shear_rate, **params)`` returns the model's ``target`` quantity
     (``"viscosity"`` in Pa·s or ``"shear_stress"`` in Pa) at ``shear_rate`` (1/s);
     its keyword names are the parameter names. ``guess(shear_rate, target_values)``
-    returns starting values from the data, so no user guess is needed.
-    ``equation`` is the model's form in plain text for reports.
+    returns starting values from the data, so no user guess is needed; it may return a
+    list of such dicts (the engine fits from each and keeps the best: a multi-start).
+    ``function`` is what gammadot wraps as an ``lmfit.Model`` (its first argument is the
+    independent variable). ``jacobian(shear_rate, **params)``, optional, returns
+    ``{name: ∂function/∂name}`` (arrays like ``shear_rate``); without it the engine
+    differentiates numerically. ``equation`` is the model's form in plain text for reports.
     """
 
     id: str
@@ -194,9 +207,10 @@ class Model:
     target: Literal["viscosity", "shear_stress"]
     parameters: tuple[ModelParameter, ...]
     function: Callable[..., "np.ndarray"]
-    guess: Callable[["np.ndarray", "np.ndarray"], dict[str, float]]
+    guess: Callable[["np.ndarray", "np.ndarray"], "Mapping[str, float] | Sequence[Mapping[str, float]]"]
     equation: str = ""
     reference: str = ""
+    jacobian: Callable[..., Mapping[str, "np.ndarray"]] | None = None
 
 
 @dataclass(frozen=True)

@@ -33,7 +33,7 @@ POINT_COLUMNS: dict[str, str] = {
     "dial_reading": "1",
     "first_normal_stress_difference": "Pa",
 }
-TABLE_NAMES = ("runs", "points", "fits", "parameters", "results", "checks", "rejected")
+TABLE_NAMES = ("runs", "points", "fits", "parameters", "correlations", "results", "checks", "rejected")
 
 
 def _field(name: str, type_: pa.DataType, unit: str | None = None) -> pa.Field:
@@ -144,7 +144,8 @@ def fits_table(result: "StudyResult") -> pa.Table:
 
 
 def parameters_table(result: "StudyResult") -> pa.Table:
-    """parameters.parquet: one row per run, model and parameter (value and standard error)."""
+    """parameters.parquet: one row per run, model and parameter (value and standard error;
+    both null when the parameter is not identified, ``note`` saying why)."""
     rows = [(r.run.run_id, f.model, p) for r in result.runs for f in r.fits for p in f.parameters]
     return _table({
         "run_id": ([rid for rid, _, _ in rows], pa.string(), None),
@@ -153,6 +154,20 @@ def parameters_table(result: "StudyResult") -> pa.Table:
         "value": ([p.value for _, _, p in rows], pa.float64(), None),
         "stderr": ([p.stderr for _, _, p in rows], pa.float64(), None),
         "unit": ([p.unit for _, _, p in rows], pa.string(), None),
+        "note": ([p.note or None for _, _, p in rows], pa.string(), None),
+    })
+
+
+def correlations_table(result: "StudyResult") -> pa.Table:
+    """correlations.parquet: one row per run, model and pair of parameters with standard errors:
+    the correlation coefficient of their estimates (from the covariance)."""
+    rows = [(r.run.run_id, f.model, c) for r in result.runs for f in r.fits for c in f.correlations]
+    return _table({
+        "run_id": ([rid for rid, _, _ in rows], pa.string(), None),
+        "model": ([m for _, m, _ in rows], pa.string(), None),
+        "parameter_1": ([c[0] for _, _, c in rows], pa.string(), None),
+        "parameter_2": ([c[1] for _, _, c in rows], pa.string(), None),
+        "correlation": ([c[2] for _, _, c in rows], pa.float64(), "1"),
     })
 
 
@@ -215,6 +230,6 @@ def build_tables(result: "StudyResult") -> dict[str, pa.Table]:
     """All contract tables by name (``runs``, ``points``, ...)."""
     builders: Iterable[tuple[str, Any]] = (
         ("runs", runs_table), ("points", points_table), ("fits", fits_table),
-        ("parameters", parameters_table), ("results", results_table), ("checks", checks_table),
-        ("rejected", rejected_table))
+        ("parameters", parameters_table), ("correlations", correlations_table), ("results", results_table),
+        ("checks", checks_table), ("rejected", rejected_table))
     return {**{name: build(result) for name, build in builders}, **analysis_tables(result)}

@@ -15,6 +15,8 @@ BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
     ("instrument_geometry", "gammadot.plugins.instrument_geometry"),
     ("rotational_geometries", "gammadot.plugins.rotational_geometries"),
     ("basic_models", "gammadot.plugins.basic_models"),
+    ("yield_stress_models", "gammadot.plugins.yield_stress_models"),
+    ("plateau_models", "gammadot.plugins.plateau_models"),
     ("basic_checks", "gammadot.plugins.basic_checks"),
     ("checks_instrument", "gammadot.plugins.checks_instrument"),
     ("checks_inertia", "gammadot.plugins.checks_inertia"),

@@ -421,7 +421,9 @@ def fit_curves(rr: Any, registry: Any) -> tuple[list[dict[str, Any]], list[str]]
         if not fit.success or fit.shear_rate_min is None or fit.shear_rate_max is None:
             continue
         provided = registry.models.get(fit.model)
-        values = {p.name: p.value for p in fit.parameters}
+        # every parameter's least-squares value: a curve is determined inside the fitted range
+        # even where one parameter (η∞ without its plateau) is not identified
+        values = dict(getattr(fit, "best_fit", None) or {p.name: p.value for p in fit.parameters})
         if provided is None or any(v is None or not math.isfinite(v) for v in values.values()):
             notes.append(f"{_model_title(registry, fit.model)}: curve not drawn (parameters not determined)")
             continue

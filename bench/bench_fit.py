@@ -1,0 +1,157 @@
+"""Benchmark: gammadot's fitting engine against a bare scipy.optimize.least_squares loop.
+
+Run: `python bench/bench_fit.py` (from the repository, with gammadot installed).
+
+Measured, each as a ratio to the bare loop timed in the same run:
+1. fits per second of ``carreau_yasuda`` and ``herschel_bulkley`` on 40 points
+   (``gammadot.fitting.fit_model``: data-driven starts with the global stage, the bounded
+   Levenberg–Marquardt fit, covariance, identifiability, AICc/BIC);
+2. the fit stage of a 200-run study (25 points per run, every applicable model: the nine
+   built-ins) through ``gammadot.processing.fit_run``, which also selects the model.
+
+The bare loop is ``least_squares(residual, p0, jac=analytic, method="lm")`` on the same
+log-space residuals from the same starting values (the models' own ``guess`` output, computed
+before the clock starts), unbounded, with nothing computed after the fit. Timings alternate
+between the two sides and the median of several repeats is reported (CPU time of this
+process, so other load on the machine matters less).
+"""
+
+from __future__ import annotations
+
+import statistics
+import time
+from typing import Callable
+
+import numpy as np
+from scipy.optimize import least_squares
+
+from gammadot.config import StudyConfig
+from gammadot.datamodel import Run
+from gammadot.fitting import fit_model
+from gammadot.plugin_manager import build_plugin_manager
+from gammadot.processing import fit_run
+from gammadot.records import Model
+from gammadot.registry import build_registry
+
+REPEATS = 5
+CURVES = 200
+
+
+def _curves(model: Model, truths: list[dict[str, float]], rate: np.ndarray, seed: int) -> list[np.ndarray]:
+    rng = np.random.default_rng(seed)
+    return [model.function(rate, **p) * (1 + 0.015 * rng.standard_normal(rate.shape)) for p in truths]
+
+
+def _bare_problem(model: Model, rate: np.ndarray, values: np.ndarray):
+    """Residual ln f − ln y and its analytic Jacobian (∂f/∂p)/f, unbounded parameters."""
+    names = [p.name for p in model.parameters]
+    target = np.log(values)
+
+    def residual(p):
+        return np.log(model.function(rate, **dict(zip(names, p)))) - target
+
+    def jacobian(p):
+        params = dict(zip(names, p))
+        parts = model.jacobian(rate, **params)
+        return np.column_stack([np.broadcast_to(parts[n], rate.shape) for n in names]) / model.function(rate, **params)[:, None]
+
+    return residual, jacobian
+
+
+def _starts(model: Model, rate: np.ndarray, values: np.ndarray) -> np.ndarray:
+    start = model.guess(rate, values)
+    start = start if isinstance(start, dict) else start[0]
+    return np.array([start[p.name] for p in model.parameters])
+
+
+def _median_cpu(work: Callable[[], object]) -> float:
+    times = []
+    for _ in range(REPEATS):
+        t = time.process_time()
+        work()
+        times.append(time.process_time() - t)
+    return statistics.median(times)
+
+
+def _interleaved(ours: Callable[[], object], bare: Callable[[], object]) -> tuple[float, float]:
+    ours(), bare()  # warm-up (imports, caches)
+    a, b = [], []
+    for _ in range(REPEATS):
+        a.append(_median_cpu_once(ours))
+        b.append(_median_cpu_once(bare))
+    return statistics.median(a), statistics.median(b)
+
+
+def _median_cpu_once(work: Callable[[], object]) -> float:
+    t = time.process_time()
+    work()
+    return time.process_time() - t
+
+
+def single_model(registry, model_id: str, truths: list[dict[str, float]]) -> None:
+    model = registry.models[model_id].record
+    rate = np.geomspace(0.01, 1000.0, 40)
+    curves = _curves(model, truths, rate, seed=7)
+    problems = [(_bare_problem(model, rate, y), _starts(model, rate, y)) for y in curves]
+
+    def ours():
+        for y in curves:
+            fit_model(model, rate, y)
+
+    def bare():
+        for (residual, jacobian), p0 in problems:
+            least_squares(residual, p0, jac=jacobian, method="lm")
+
+    t_ours, t_bare = _interleaved(ours, bare)
+    print(f"{model_id:17s} gammadot {len(curves) / t_ours:7.0f} fits/s   bare least_squares "
+          f"{len(curves) / t_bare:7.0f} fits/s   ratio {t_ours / t_bare:.2f}")
+
+
+def study_fit_stage(registry) -> None:
+    rng = np.random.default_rng(2026)
+    rate = np.geomspace(0.1, 1000.0, 25)
+    runs = []
+    for i in range(CURVES):  # lotion-like shear-thinning curves as in bench_study.py, 1 % noise
+        eta = 5.0 * (1 + (rate / 2.0) ** 2) ** -0.3 * (1 + 0.01 * rng.standard_normal(rate.shape))
+        runs.append(Run(run_id=f"r{i}", source_file="bench.csv", source_sha256="0" * 64,
+                        first_line=1, metadata={}, columns={"shear_rate": rate, "viscosity": eta,
+                                                            "shear_stress": eta * rate}))
+    config = StudyConfig(title="bench")
+    excluded = np.zeros(len(rate), dtype=bool)
+    models = [p.record for p in registry.models.values()]
+    problems = []
+    for run in runs:
+        for model in models:
+            values = run.columns[model.target]
+            problems.append((_bare_problem(model, rate, values), _starts(model, rate, values)))
+
+    def ours():
+        for run in runs:
+            fit_run(run, excluded, config, registry)
+
+    def bare():
+        for (residual, jacobian), p0 in problems:
+            least_squares(residual, p0, jac=jacobian, method="lm")
+
+    t_ours, t_bare = _interleaved(ours, bare)
+    print(f"200-run fit stage ({len(models)} models each): gammadot {t_ours:.2f} s, "
+          f"bare least_squares {t_bare:.2f} s, ratio {t_ours / t_bare:.2f}")
+
+
+def main() -> None:
+    registry = build_registry(build_plugin_manager(entry_points=False))
+    rng = np.random.default_rng(1)
+    cy = [{"eta0": 10 ** rng.uniform(0, 3), "eta_inf": 0.0, "lam": 10 ** rng.uniform(-1, 1),
+           "a": rng.uniform(0.5, 3.0), "n": rng.uniform(0.2, 0.6)} for _ in range(CURVES)]
+    for p in cy:
+        p["eta_inf"] = p["eta0"] * 1e-3
+    hb = [{"tau_y": 10 ** rng.uniform(0, 2), "K": 10 ** rng.uniform(-0.5, 1.5), "n": rng.uniform(0.3, 0.8)}
+          for _ in range(CURVES)]
+    print(f"CPU time of this process, median of {REPEATS} interleaved repeats; {CURVES} curves each")
+    single_model(registry, "carreau_yasuda", cy)
+    single_model(registry, "herschel_bulkley", hb)
+    study_fit_stage(registry)
+
+
+if __name__ == "__main__":
+    main()
