@@ -10,7 +10,11 @@ MWF-RH-01 and MWF-RH-02) and files the exports by month and production line:
 - Calmora zinc barrier ointment, batch ZB-2611: yield stress (Casson);
 - hand-cream base HCB-2612: yield stress (Herschel–Bulkley);
 - Tessel tile-joint paste JP-2612: yield stress (Bingham);
-- in-house check oil RO-0926: near-Newtonian reference.
+- in-house check oil RO-0926: near-Newtonian reference;
+- Aldercove styling gel SG-2612: yield stress (Herschel–Bulkley) that slips on smooth plates,
+  measured at two gaps (1.0 mm from study.toml, 0.5 mm from the run's own ``gap:`` line);
+- Drayhold XV-40 viscosifier, lot XV-2612, checked in the lab's reference mud on a six-speed
+  direct-indicating viscometer (R1-B1 rotor–bob, F1 spring) at 120 °F (48.9 °C).
 
 Every number comes from a constitutive model (see :func:`demo_truth`) turned into what an
 instrument records. Viscosity-like parameters follow an Arrhenius shift with temperature,
@@ -20,10 +24,13 @@ the geometry's physics (SI units; Ω angular velocity in rad/s, M torque in N·m
 - cone-plate, small angle α: γ̇ = Ω/α everywhere, M = 2πR³τ(γ̇)/3; a truncated tip (flat
   centre of radius R_t = h_t/α at gap h_t) adds 2π∫₀^{R_t} τ(Ωr/h_t) r² dr and removes its
   share of the cone;
-- parallel plates, gap h: γ̇(r) = Ωr/h, M = 2π∫₀ᴿ τ(Ωr/h) r² dr (quadrature);
+- parallel plates, gap h: γ̇(r) = Ωr/h, M = 2π∫₀ᴿ τ(Ωr/h) r² dr (quadrature); with wall
+  slip at both plates, u_s = β·τ, the local stress solves γ̇(τ) + 2βτ/h = Ωr/h (Brent's method);
 - concentric cylinders, inner cylinder turning, outer fixed, δ = Ro/Ri: τ(r) = τ_i (Ri/r)², so
   Ω = ½∫_{τ_i/δ²}^{τ_i} γ̇(τ)/τ dτ (γ̇ = 0 below a yield stress); τ_i is solved for each Ω
-  (Brent's method) and M = 2πRi²Lτ_i. No end effects are simulated.
+  (Brent's method) and M = 2πRi²Lτ_i. No end effects are simulated;
+- direct-indicating viscometer: the same Couette relation with the R1-B1 radius ratio; the
+  dial shows the bob stress over 0.511 Pa per degree, read to half a degree.
 
 Then the artefacts of a real lab: 1.5 % multiplicative torque noise, an additive noise of
 0.08 µN·m at the instrument's resolution floor (visible at the lowest torques of the check
@@ -40,7 +47,7 @@ write byte-identical files.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any, Callable, Mapping
 
@@ -52,6 +59,7 @@ __all__ = [
     "DEMO_SEED",
     "ConcentricCylinder",
     "ConePlate",
+    "DirectIndicating",
     "FlowModel",
     "ParallelPlate",
     "cone_plate_torque",
@@ -60,6 +68,7 @@ __all__ = [
     "couette_torque",
     "demo_truth",
     "parallel_plate_torque",
+    "slipping_stress",
     "write_demo_study",
 ]
 
@@ -185,14 +194,36 @@ def cone_plate_torque(model: FlowModel, omega: float, radius: float, angle: floa
     return cone + parallel_plate_torque(model, omega, tip_radius, truncation_gap)
 
 
-def parallel_plate_torque(model: FlowModel, omega: float, radius: float, gap: float) -> float:
+def parallel_plate_torque(model: FlowModel, omega: float, radius: float, gap: float,
+                          slip: float = 0.0) -> float:
     """Torque (N·m) on a plate of radius ``radius`` (m) at gap ``gap`` (m) and Ω (rad/s).
 
-    γ̇(r) = Ωr/h; M = 2π∫₀ᴿ τ(Ωr/h) r² dr, by adaptive quadrature.
+    γ̇(r) = Ωr/h; M = 2π∫₀ᴿ τ(Ωr/h) r² dr, by adaptive quadrature. With wall slip at both
+    plates, slip velocity u_s = ``slip``·τ (``slip`` in m/(s·Pa)), the local stress τ(r)
+    solves γ̇(τ) + 2u_s(τ)/h = Ωr/h.
     """
-    value, _ = quad(lambda r: float(model.stress(omega * r / gap)) * r * r, 0.0, radius,
-                    epsabs=0.0, epsrel=1e-11, limit=200)
+    if slip > 0.0:
+        def stress_at(r: float) -> float:
+            return slipping_stress(model, omega * r / gap, gap, slip)
+    else:
+        def stress_at(r: float) -> float:
+            return float(model.stress(omega * r / gap))
+    value, _ = quad(lambda r: stress_at(r) * r * r, 0.0, radius, epsabs=0.0, epsrel=1e-11, limit=200)
     return 2.0 * math.pi * value
+
+
+def slipping_stress(model: FlowModel, apparent_rate: float, gap: float, slip: float) -> float:
+    """Stress τ (Pa) with γ̇(τ) + 2·slip·τ/h = ``apparent_rate`` (1/s): flow plus slip at both walls."""
+    if apparent_rate <= 0.0:
+        return 0.0
+
+    def mismatch(tau: float) -> float:
+        return model.rate(tau) + 2.0 * slip * tau / gap - apparent_rate
+
+    high = apparent_rate * gap / (2.0 * slip)  # slip alone would need this stress
+    if mismatch(high) <= 0.0:  # below a yield stress the sample only slides
+        return high
+    return brentq(mismatch, 0.0, high, xtol=1e-14 * high, rtol=1e-13)
 
 
 def couette_speed(model: FlowModel, tau_i: float, delta: float) -> float:
@@ -259,9 +290,9 @@ class ParallelPlate:
     gap: float
     kind: str = "parallel_plate"
 
-    def torque(self, model: FlowModel, omega: float) -> float:
-        """Torque (N·m) at Ω (rad/s)."""
-        return parallel_plate_torque(model, omega, self.radius, self.gap)
+    def torque(self, model: FlowModel, omega: float, slip: float = 0.0) -> float:
+        """Torque (N·m) at Ω (rad/s); ``slip`` (m/(s·Pa)) gives u_s = slip·τ at both plates."""
+        return parallel_plate_torque(model, omega, self.radius, self.gap, slip)
 
     def speed_for(self, rate: float) -> float:
         """Ω (rad/s) giving the rim shear rate ``rate`` (1/s): Ω = γ̇_R h/R."""
@@ -315,14 +346,55 @@ def couette_torque(model: FlowModel, omega: float, geometry: ConcentricCylinder)
     return 2.0 * math.pi * geometry.inner_radius**2 * geometry.immersed_length * tau_i
 
 
-Geometry = ConePlate | ParallelPlate | ConcentricCylinder
+@dataclass(frozen=True)
+class DirectIndicating:
+    """Six-speed direct-indicating viscometer: rotor (outer) and bob radii (m), dial constants.
+
+    ``rate_per_rpm`` (1/s) and ``stress_per_degree`` (Pa) are the standard R1-B1/F1 values;
+    the outer sleeve turns, which gives the same steady Couette relation as an inner one.
+    """
+
+    rotor_radius: float = 18.415e-3
+    bob_radius: float = 17.245e-3
+    rate_per_rpm: float = 1.7023
+    stress_per_degree: float = 0.511
+    kind: str = "direct_indicating"
+
+    @property
+    def delta(self) -> float:
+        """Radius ratio δ = R_rotor/R_bob (1)."""
+        return self.rotor_radius / self.bob_radius
+
+    def speed_for(self, rpm: float) -> float:
+        """Ω (rad/s) of a dial speed in rpm."""
+        return rpm / RPM
+
+    def dial(self, model: FlowModel, omega: float) -> float:
+        """Noise-free dial deflection (degrees) at Ω (rad/s): bob stress / stress per degree."""
+        return couette_inner_stress(model, omega, self.delta) / self.stress_per_degree
+
+    def apparent(self, omega: np.ndarray, dial: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """The standard's bob values: γ̇ = factor·N (1/s), τ = factor·θ (Pa)."""
+        return self.rate_per_rpm * omega * RPM, self.stress_per_degree * dial
+
+    def toml_items(self) -> list[tuple[str, str]]:
+        """study.toml entries: the R1-B1/F1 dial constants, written out."""
+        return [("shear_rate_factor", f"{self.rate_per_rpm:g}"), ("stress_factor", f"{self.stress_per_degree:g} Pa")]
+
+
+Geometry = ConePlate | ParallelPlate | ConcentricCylinder | DirectIndicating
 
 GEOMETRIES: dict[str, Geometry] = {
     "cone50-1deg": ConePlate(radius=25e-3, cone_angle=math.radians(1.0), truncation=50e-6),
     "plate25": ParallelPlate(radius=12.5e-3, gap=1.0e-3),
     "bob25-cup29": ConcentricCylinder(inner_radius=12.5e-3, outer_radius=14.5e-3,
                                       immersed_length=37.5e-3),
+    "plate40-smooth": ParallelPlate(radius=20e-3, gap=1.0e-3),
+    "dial-r1b1": DirectIndicating(),
 }
+DIAL_SPEEDS = (600.0, 300.0, 200.0, 100.0, 6.0, 3.0)  # rpm, read from high to low
+DIAL_STEP = 0.5  # degrees: the dial is read to half a degree
+DIAL_NOISE = 0.3  # degrees, standard deviation of the reading before rounding
 
 
 def _mm(value: float) -> str:
@@ -348,6 +420,7 @@ class Sample:
     params: Mapping[str, float]
     activation_energy: float
     yield_drop: float = 0.0
+    slip: float = 0.0  # m/(s·Pa): wall-slip velocity per unit stress on smooth plates
 
 
 SAMPLES: dict[str, Sample] = {s.code: s for s in (
@@ -364,6 +437,10 @@ SAMPLES: dict[str, Sample] = {s.code: s for s in (
            {"tau_y": 32.0, "K": 8.5, "n": 0.44}, 20e3, 0.012),
     Sample("JP-2612", "Tessel tile-joint paste", "bingham",
            {"tau_y": 55.0, "eta_p": 1.6}, 22e3, 0.006),
+    Sample("SG-2612", "Aldercove styling gel", "herschel_bulkley",
+           {"tau_y": 18.0, "K": 9.0, "n": 0.42}, 15e3, 0.004, slip=4e-5),
+    Sample("XV-2612", "Drayhold XV-40 viscosifier in reference mud", "herschel_bulkley",
+           {"tau_y": 3.2, "K": 0.28, "n": 0.6}, 12e3, 0.002),
 )}
 
 _SHIFTED = frozenset({"eta", "eta0", "eta_inf", "eta_p", "eta_c", "K", "lam"})
@@ -393,6 +470,7 @@ class RunPlan:
     date: str
     note: str
     outlier_index: int | None = None
+    gap: float | None = None  # m: a gap other than study.toml's, written as the run's ``gap:`` line
 
 
 @dataclass(frozen=True)
@@ -515,6 +593,25 @@ EXPORTS: tuple[ExportPlan, ...] = (
                  "serrated plates - edge trimmed after loading")),
         raw=True, instrument=_RIG_2),
     ExportPlan(
+        "exports/2026-12/line-a/SG-2612_styling-gel_two-gaps.csv",
+        Dialect("utf-8", ",", ".", "\n", ":", "[]"),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Rotational speed", "1/min", RPM, sig=4),
+         Column("torque", "Torque", "mN·m", 1e3, decimals=5),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("SG-2612", 25.0, "plate40-smooth", 0.3, 300.0, 16, "I. Haldane", "2026-12-11",
+                 "smooth plates; gap from the method (1.0 mm)"),
+         RunPlan("SG-2612", 25.0, "plate40-smooth", 0.3, 300.0, 16, "I. Haldane", "2026-12-11",
+                 "smooth plates; repeat at half the gap to check for wall slip", gap=0.5e-3)),
+        raw=True, instrument=_RIG_2),
+    ExportPlan(
+        "exports/2026-12/mud-lab/XV-2612_viscosifier_six-speed.txt",
+        Dialect("utf-8", "\t", ".", "\r\n", "=", "[]", title_keys=True),
+        (Column("angular_velocity", "Speed", "rpm", RPM, sig=4), Column("dial_reading", "Dial reading", "-", decimals=1),
+         Column("temperature", "Temperature", "°C", decimals=1)),
+        (RunPlan("XV-2612", 48.9, "dial-r1b1", 3.0 * 1.7023, 600.0 * 1.7023, len(DIAL_SPEEDS), "T. Vesna",
+                 "2026-12-14", "lot check at 1 lb/bbl in the reference mud, readings from 600 rpm down"),),
+        raw=True, instrument="six-speed viscometer MWF-VG-03 (lab asset)"),
+    ExportPlan(
         "exports/2026-12/line-b/recheck/LT-2612_body-lotion_40C_BROKEN-truncated-export.csv",
         Dialect("utf-8", ",", ".", "\n", ":", "[]"),
         (Column("shear_rate", "Shear rate", "1/s"), Column("shear_stress", "Shear stress", "Pa"),
@@ -550,13 +647,30 @@ def _speeds(plan: RunPlan, export: ExportPlan) -> np.ndarray:
     Raw exports write the set-point with the speed column's precision; the written value is
     the true one, so the file and the simulation agree exactly.
     """
-    geometry = GEOMETRIES[plan.geometry]
+    geometry = geometry_of(plan)
+    if isinstance(geometry, DirectIndicating):
+        return np.array([geometry.speed_for(rpm) for rpm in DIAL_SPEEDS])
     rates = np.geomspace(plan.rate_min, plan.rate_max, plan.points)
     omega = np.array([geometry.speed_for(float(r)) for r in rates])
     speed = next((c for c in export.columns if c.quantity == "angular_velocity"), None)
     if speed is None:
         return omega
     return np.array([_round_sig(w * speed.factor, speed.sig) / speed.factor for w in omega])
+
+
+def geometry_of(plan: RunPlan) -> Geometry:
+    """The run's geometry, with its own gap where the run states one."""
+    geometry = GEOMETRIES[plan.geometry]
+    if plan.gap is not None and isinstance(geometry, ParallelPlate):
+        return replace(geometry, gap=plan.gap)
+    return geometry
+
+
+def _dial_readings(geometry: DirectIndicating, model: FlowModel, omega: np.ndarray,
+                   rng: np.random.Generator) -> np.ndarray:
+    """Dial readings (degrees) as an operator writes them: noise, then half-degree steps."""
+    true = np.array([geometry.dial(model, float(w)) for w in omega])
+    return np.round((true + DIAL_NOISE * rng.standard_normal(true.size)) / DIAL_STEP) * DIAL_STEP
 
 
 def _noisy_torque(true: np.ndarray, rng: np.random.Generator, outlier: int | None) -> np.ndarray:
@@ -581,16 +695,24 @@ def simulate_run(plan: RunPlan, export: ExportPlan, seed: Any) -> dict[str, np.n
     records them; ``seed`` feeds ``numpy.random.default_rng``.
     """
     rng = np.random.default_rng(seed)
-    geometry = GEOMETRIES[plan.geometry]
-    model = model_at(SAMPLES[plan.sample], plan.temperature)
+    geometry = geometry_of(plan)
+    sample = SAMPLES[plan.sample]
+    model = model_at(sample, plan.temperature)
     omega = _speeds(plan, export)
-    true = np.array([geometry.torque(model, float(w)) for w in omega])
-    torque = _noisy_torque(true, rng, plan.outlier_index)
-    rate, stress = geometry.apparent(omega, torque)
+    columns: dict[str, np.ndarray] = {"time": _step_times(omega, geometry), "angular_velocity": omega}
+    if isinstance(geometry, DirectIndicating):
+        columns["dial_reading"] = _dial_readings(geometry, model, omega, rng)
+        rate, stress = geometry.apparent(omega, columns["dial_reading"])
+    else:
+        if isinstance(geometry, ParallelPlate) and sample.slip:
+            true = np.array([geometry.torque(model, float(w), sample.slip) for w in omega])
+        else:
+            true = np.array([geometry.torque(model, float(w)) for w in omega])
+        columns["torque"] = _noisy_torque(true, rng, plan.outlier_index)
+        rate, stress = geometry.apparent(omega, columns["torque"])
     temperature = plan.temperature + 0.03 * rng.standard_normal(omega.size)
-    return {"time": _step_times(omega, geometry), "angular_velocity": omega, "torque": torque,
-            "temperature": temperature, "shear_rate": rate, "shear_stress": stress,
-            "viscosity": stress / rate}
+    return columns | {"temperature": temperature, "shear_rate": rate, "shear_stress": stress,
+                      "viscosity": stress / rate}
 
 
 # -------------------------------------------------------------------------- writing
@@ -615,6 +737,8 @@ def _metadata_lines(plan: RunPlan, export: ExportPlan) -> list[str]:
     items = [("sample", plan.sample), ("product", sample.product)]
     if export.raw:
         items.append(("geometry", plan.geometry))
+    if plan.gap is not None:
+        items.append(("gap", _mm(plan.gap)))
     items += [("temperature", f"{plan.temperature:g} °C"), ("operator", plan.operator),
               ("date", plan.date), ("instrument", export.instrument), ("note", plan.note)]
     if any(export.dialect.delimiter in v for _, v in items):
@@ -679,23 +803,31 @@ def study_toml() -> str:
         "[study]",
         'title = "Merrowind QC lab: flow curves of November and December 2026 batches (demo)"',
         'description = "Fictitious demo data generated from models by gammadot. Lotion, paint, '
-        'ointment, hand-cream base, tile-joint paste and a check oil at 20, 25 and 40 °C."',
+        'ointment, hand-cream base, tile-joint paste and a check oil at 20, 25 and 40 °C; a styling gel '
+        'on smooth plates at two gaps; a viscosifier in reference mud on a six-speed viscometer."',
     ]
+    comments = {"truncation": "gap at the flattened cone tip", "shear_rate_factor": "R1-B1 rotor-bob: 1/s per rpm",
+                "stress_factor": "F1 spring: stress per dial degree"}
     for gid, geometry in GEOMETRIES.items():
         lines += ["", f"[geometries.{gid}]", f'type = "{geometry.kind}"']
-        lines += [f'{k} = "{v}"' for k, v in geometry.toml_items()]
-        if geometry.kind == "cone_plate":
-            lines[-1] += "   # gap at the flattened cone tip"
+        for key, value in geometry.toml_items():
+            lines.append(f'{key} = "{value}"' + (f"   # {comments[key]}" if key in comments else ""))
     lines += ["", "[fit]", 'models = ["newtonian", "power_law"]', ""]
     return "\n".join(lines)
+
+
+def _export_kind(export: ExportPlan) -> str:
+    if any(c.quantity == "dial_reading" for c in export.columns):
+        return "dial readings and speed"
+    return "torque and speed" if export.raw else "instrument-computed"
 
 
 def readme_text() -> str:
     """The study folder's README.txt: the fictitious scenario and what the files show."""
     products = "\n".join(f"  {s.code:<9} {s.product} ({s.model.replace('_', '-')}-like)"
                          for s in SAMPLES.values())
-    files = "\n".join(f"  {e.path}  ({len(e.runs)} run{'s' * (len(e.runs) > 1)}, "
-                      f"{'torque and speed' if e.raw else 'instrument-computed'})" for e in EXPORTS)
+    files = "\n".join(f"  {e.path}  ({len(e.runs)} run{'s' * (len(e.runs) > 1)}, {_export_kind(e)})"
+                      for e in EXPORTS)
     return README_TEMPLATE.format(products=products, files=files)
 
 
@@ -725,6 +857,10 @@ Deliberate artefacts, so that the checks have something to find:
   - about 1.5 % noise on every torque, and extra noise near the torque resolution floor
     (about 0.08 uN.m; see the check oil at low shear rates);
   - one clear outlier (an air bubble) in LT-2611 at 20 C;
+  - the styling gel slips on smooth plates (slip velocity proportional to stress); it
+    was measured at 1.0 mm and, with a `gap: 0.5 mm` line in the run, at 0.5 mm, so the
+    wall-slip analysis can separate slip from flow;
+  - the mud's dial readings are whole or half degrees, as an operator writes them;
   - one export cut short by an interrupted transfer (file name says BROKEN); it must be
     rejected while the rest of the study is processed.
 """
@@ -752,7 +888,7 @@ def write_demo_study(target: Path) -> Path:
 
 def _run_truth(index: int, plan: RunPlan, export: ExportPlan) -> dict[str, Any]:
     """What generated one run: model, parameters (SI), geometry, artefacts."""
-    geometry = GEOMETRIES[plan.geometry]
+    geometry = geometry_of(plan)
     model = model_at(SAMPLES[plan.sample], plan.temperature)
     return {
         "index": index, "sample": plan.sample, "product": SAMPLES[plan.sample].product,
@@ -761,14 +897,16 @@ def _run_truth(index: int, plan: RunPlan, export: ExportPlan) -> dict[str, Any]:
         "geometry_in_file": export.raw, "export": "raw" if export.raw else "computed",
         "n_points": plan.points, "nominal_shear_rate": (plan.rate_min, plan.rate_max),
         "outlier_index": plan.outlier_index, "relative_noise": REL_NOISE,
-        "torque_floor": TORQUE_FLOOR,
+        "torque_floor": TORQUE_FLOOR, "gap": getattr(geometry, "gap", None),
+        "gap_in_file": plan.gap is not None, "slip_per_stress": SAMPLES[plan.sample].slip,
     }
 
 
 def demo_truth() -> dict[str, dict[str, Any]]:
     """Per written export (path relative to the study, POSIX style): its dialect, whether the
     importer must reject it, and per run (in file order) the generating model and parameters
-    in SI units (Pa, Pa·s, Pa·sⁿ, s), temperature in °C, the geometry id and the artefacts.
+    in SI units (Pa, Pa·s, Pa·sⁿ, s), temperature in °C, the geometry id and the artefacts
+    (gap in m where the geometry has one, wall-slip velocity per stress in m/(s·Pa)).
     """
     return {
         e.path: {

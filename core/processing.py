@@ -128,6 +128,11 @@ def run_checks(result: "RunResult", config: StudyConfig, registry: Registry, *, 
 
 def _record(result: "RunResult", finding: Finding) -> None:
     result.findings.append(finding)
+    _flag_point(result, finding)
+
+
+def _flag_point(result: "RunResult", finding: Finding) -> None:
+    """A point finding adds its check id to the point's flags; ``exclude`` keeps it out of fits."""
     index = finding.point_index
     if index is not None and 0 <= index < len(result.flags):
         result.flags[index].append(finding.check)
@@ -184,6 +189,8 @@ def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
         return result
     _apply_conversion(run, conversion)
     result.results.extend(conversion.results)
+    for note in conversion.notes:  # already among the findings; a point note flags its point
+        _flag_point(result, note)
     run_checks(result, config, registry, after_fit=False)
     result.fits = fit_run(run, result.excluded, config, registry)
     try:

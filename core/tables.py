@@ -32,6 +32,7 @@ POINT_COLUMNS: dict[str, str] = {
     "shear_stress_apparent": "Pa",
     "dial_reading": "1",
     "first_normal_stress_difference": "Pa",
+    "normal_stress_difference_12": "Pa",
 }
 TABLE_NAMES = ("runs", "points", "fits", "parameters", "correlations", "results", "checks", "rejected")
 

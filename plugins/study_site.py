@@ -250,6 +250,49 @@ def _fit_view(fit: Any, registry: Any) -> dict[str, Any]:
     }
 
 
+_CORRECTION_PREFIX = "correction_"
+
+
+def _percent(value: float | None) -> str:
+    return "—" if value is None or not math.isfinite(value) else f"{fmt(100.0 * value, 2)} %"
+
+
+def correction_summary(rr: Any) -> dict[str, Any]:
+    """The correction a run's geometry applied and how large it was (from its results).
+
+    ``method`` is the correction's name ("none" when nothing was corrected); ``line`` one
+    sentence for the run page; ``short`` the largest relative change for the runs table.
+    """
+    sizes = {r.name[len(_CORRECTION_PREFIX):]: r.value for r in rr.results if r.name.startswith(_CORRECTION_PREFIX)}
+    method = rr.correction or "none"
+    if not sizes:
+        text = "instrument values used as exported" if rr.geometry_type == "instrument" else "not reported"
+        return {"method": method, "line": f"{method}: {text}.", "short": "—"}
+    largest = [v for k, v in sizes.items() if k.endswith("_max") and v is not None]
+    line = (f"{method}: shear rate changed by at most {_percent(sizes.get('shear_rate_max'))} "
+            f"(median {_percent(sizes.get('shear_rate_median'))}), shear stress by at most "
+            f"{_percent(sizes.get('shear_stress_max'))} (median {_percent(sizes.get('shear_stress_median'))}), "
+            "relative to the apparent (Newtonian) values.")
+    return {"method": method, "line": line, "short": _percent(max(largest)) if largest else "—"}
+
+
+def _results_view(rr: Any) -> list[dict[str, Any]]:
+    """Every run-level result: name, value ± stderr with unit (or n/a), method, note."""
+    views = []
+    for r in rr.results:
+        if r.value is None or not math.isfinite(r.value):
+            value = "n/a"
+        else:
+            value = fmt_estimate(r.value, r.stderr, r.unit).replace(" (standard error not determined)", "")
+        note = r.note
+        if r.at_shear_rate is not None:
+            note = f"at {fmt(r.at_shear_rate)} 1/s" + ("" if not note else f"; {note}")
+        if r.extrapolated:
+            note = f"extrapolated; {note}" if note else "extrapolated"
+        views.append({"name": r.name, "value": value, "unit": fmt_unit(r.unit), "method": r.method, "note": note})
+    return views
+
+
 def _run_row(rr: Any, page: str, registry: Any) -> dict[str, Any]:
     selected = rr.selected
     return {
@@ -258,6 +301,7 @@ def _run_row(rr: Any, page: str, registry: Any) -> dict[str, Any]:
         "sample": rr.run.sample,
         "temperature": _temperature_text(rr),
         "geometry": _geometry_text(rr),
+        "correction": correction_summary(rr),
         "model": _model_title(registry, selected.model) if selected else None,
         "parameters": _parameters_view(selected, registry) if selected else [],
         "n_points": rr.run.n_points,
@@ -557,6 +601,8 @@ def _run_context(rr: Any, result: Any, ctx: _Context) -> dict[str, Any]:
         "run_id": rr.run.run_id,
         "sample": rr.run.sample,
         "metadata": _metadata_rows(rr),
+        "correction": correction_summary(rr),
+        "results": _results_view(rr),
         "figures": figures,
         "curve_notes": curve_notes,
         "n_unplottable": n_unplottable,

@@ -104,7 +104,10 @@ def test_scenario_covers_the_brief(truth: dict) -> None:
     assert {20.0, 40.0} <= {r["temperature"] for r in runs}
     assert {"carreau", "cross", "herschel_bulkley", "bingham", "newtonian"} <= {r["model"] for r in runs}
     raw = {r["geometry_type"] for r in runs if r["export"] == "raw"}
-    assert raw == {"cone_plate", "parallel_plate", "concentric_cylinder"}
+    assert raw == {"cone_plate", "parallel_plate", "concentric_cylinder", "direct_indicating"}
+    slipping = [r for r in runs if r["slip_per_stress"] > 0]  # one sample at two gaps, one gap from the file
+    assert len({r["sample"] for r in slipping}) == 1 and len({r["gap"] for r in slipping}) == 2
+    assert any(r["gap_in_file"] for r in slipping) and all(r["geometry_type"] == "parallel_plate" for r in slipping)
     assert any(r["export"] == "computed" for r in runs)
     assert {e["encoding"] for e in truth.values()} >= {"utf-8", "utf-8-sig", "cp1252", "utf-16-bom"}
     assert {e["delimiter"] for e in truth.values()} == {",", ";", "\t"}
