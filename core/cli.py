@@ -136,6 +136,29 @@ def _count(n: int, noun: str) -> str:
     return f"{n} {noun}" + ("" if n == 1 else "s")
 
 
+def sample_verdicts(result: "StudyResult") -> dict[str, dict[str, int]]:
+    """Per sample (in run order): counts of pass, fail, n/a and of values near a limit."""
+    sample_of = {r.run.run_id: r.run.sample or r.run.run_id for r in result.runs}
+    summary: dict[str, dict[str, int]] = {}
+    for verdict in result.specs:
+        counts = summary.setdefault(sample_of[verdict.run_id], {"pass": 0, "fail": 0, "n/a": 0, "uncertain": 0})
+        counts[verdict.verdict] += 1
+        counts["uncertain"] += verdict.straddles_limit
+    return summary
+
+
+def _report_specs(result: "StudyResult") -> None:
+    summary = sample_verdicts(result)
+    if not summary:
+        return
+    click.echo("specifications by sample (details in tables/specs.parquet and on the report):")
+    for sample, c in summary.items():
+        word = "FAIL" if c["fail"] else ("INCOMPLETE" if c["n/a"] else "PASS")
+        near = f"; {c['uncertain']} within the uncertainty of a limit" if c["uncertain"] else ""
+        click.echo(f"  {sample}: {word} ({c['pass']} pass, {c['fail']} fail, {c['n/a']} n/a{near})")
+    click.echo("  verdicts support, and do not replace, review by a qualified person under local procedures")
+
+
 def _report(result: "StudyResult", out_dir: Path, quiet: bool) -> None:
     for rejected in result.rejected:
         click.echo(f"rejected {rejected.describe()}", err=True)
@@ -153,6 +176,7 @@ def _report(result: "StudyResult", out_dir: Path, quiet: bool) -> None:
                 params = ", ".join(f"{p.name}={p.value:.4g}{'' if p.unit == '1' else ' ' + p.unit}"
                                    for p in chosen.parameters if p.value is not None)
                 click.echo(f"  {r.run.run_id}: {label}: {chosen.model} ({params})")
+    _report_specs(result)
     click.echo(f"{result.config.title}: {_count(n_files, 'file')}, {_count(len(result.runs), 'run')} "
                f"({ok_runs} fitted), {_count(len(result.rejected), 'file')} rejected")
     site = out_dir / "site" / "index.html"

@@ -9,12 +9,13 @@ from __future__ import annotations
 
 import difflib
 import tomllib
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 from .datamodel import QUANTITIES
 from .records import CheckSetting
+from .specs import SPEC_KEYS, SpecError, SpecRule, parse_spec_rules, spec_shear_rates
 from .units import DIMENSIONS, UnitError, parse_quantity
 
 if TYPE_CHECKING:
@@ -69,7 +70,7 @@ class StudyConfig:
     columns: Mapping[str, str] = field(default_factory=dict)
     fit: FitConfig = field(default_factory=FitConfig)
     checks: Mapping[str, Mapping[str, Any]] = field(default_factory=dict)
-    specs: tuple[Mapping[str, Any], ...] = ()
+    specs: tuple["SpecRule", ...] = ()
     limits: Mapping[str, float] = field(default_factory=dict)
     density: float | None = None
     source: str | None = None
@@ -80,7 +81,6 @@ _STUDY_KEYS = ("title", "description", "density")
 _FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates")
 _FIT_CHOICES = {"space": ("log", "linear"), "weights": ("none", "relative", "per_decade"),
                 "loss": ("linear", "soft_l1", "huber")}  # as gammadot.least_squares.Objective
-_SPEC_KEYS = ("quantity", "shear_rate", "min", "max", "name", "model", "parameter")
 _LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque"}
 
 
@@ -103,14 +103,18 @@ def parse_study_config(data: Mapping[str, Any], registry: "Registry", *, default
     study = _table(data, "study", source)
     _reject_unknown(study, _STUDY_KEYS, "[study] ", source)
     density = _quantity(study["density"], "density", "[study] density", source) if "density" in study else None
+    specs = _specs(data.get("spec", []), registry, source)
+    fit = _fit(_table(data, "fit", source), registry, source)
+    # Viscosities named by specifications are derived too (gammadot.specs needs them).
+    fit = replace(fit, shear_rates=tuple(dict.fromkeys([*fit.shear_rates, *sorted(spec_shear_rates(specs))])))
     return StudyConfig(
         title=str(study.get("title", default_title)),
         description=str(study.get("description", "")),
         geometries=_geometries(_table(data, "geometries", source), registry, source),
         columns=_columns(_table(data, "columns", source), source),
-        fit=_fit(_table(data, "fit", source), registry, source),
+        fit=fit,
         checks=_checks(_table(data, "checks", source), registry, source),
-        specs=_specs(data.get("spec", []), source),
+        specs=specs,
         limits=_limits(_table(data, "limits", source), source),
         density=density,
         source=source,
@@ -275,14 +279,15 @@ def check_settings(config: StudyConfig, check_id: str, declared: Sequence[CheckS
     return values
 
 
-def _specs(entries: Any, source: str) -> tuple[Mapping[str, Any], ...]:
-    if not isinstance(entries, list):
+def _specs(entries: Any, registry: "Registry", source: str) -> tuple[SpecRule, ...]:
+    if not isinstance(entries, list) or not all(isinstance(e, Mapping) for e in entries):
         raise StudyConfigError(f"{source}: 'spec' must be an array of tables ([[spec]])")
     for i, entry in enumerate(entries, 1):
-        _reject_unknown(entry, _SPEC_KEYS, f"[[spec]] #{i} ", source)
-        if "quantity" not in entry:
-            raise StudyConfigError(f"{source}: [[spec]] #{i} is missing the required key 'quantity'")
-    return tuple(dict(e) for e in entries)
+        _reject_unknown(entry, SPEC_KEYS, f"[[spec]] #{i} ", source)
+    try:
+        return parse_spec_rules(entries, registry)
+    except SpecError as exc:
+        raise StudyConfigError(f"{source}: {exc}") from None
 
 
 def _limits(table: Mapping[str, Any], source: str) -> dict[str, float]:

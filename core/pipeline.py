@@ -17,6 +17,7 @@ from .importing import FileOutcome, RejectedFile, import_file
 from .processing import RunResult, process_run
 from .records import AnalysisOutput, Finding
 from .registry import Registry
+from .specs import SpecVerdict, evaluate_specs
 
 if TYPE_CHECKING:
     from .cache import RunCache
@@ -59,6 +60,7 @@ class StudyResult:
     files: list[FileOutcome] = field(default_factory=list)
     runs: list[RunResult] = field(default_factory=list)
     analyses: dict[str, AnalysisOutput] = field(default_factory=dict)
+    specs: list[SpecVerdict] = field(default_factory=list)
     analysis_failures: list[WriterFailure] = field(default_factory=list)
     writer_failures: list[WriterFailure] = field(default_factory=list)
     written: list[Path] = field(default_factory=list)
@@ -104,6 +106,7 @@ def process_study(study_dir: Path, registry: Registry, *, out_dir: Path | None =
         progress.advance(rel)
     _dedupe_run_ids(result.runs)
     run_analyses(result)
+    result.specs = [v for run in result.runs for v in evaluate_specs(run, config.specs)]
     return result
 
 

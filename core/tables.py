@@ -34,7 +34,7 @@ POINT_COLUMNS: dict[str, str] = {
     "first_normal_stress_difference": "Pa",
     "normal_stress_difference_12": "Pa",
 }
-TABLE_NAMES = ("runs", "points", "fits", "parameters", "correlations", "results", "checks", "rejected")
+TABLE_NAMES = ("runs", "points", "fits", "parameters", "correlations", "results", "checks", "rejected", "specs")
 
 
 def _field(name: str, type_: pa.DataType, unit: str | None = None) -> pa.Field:
@@ -233,4 +233,29 @@ def build_tables(result: "StudyResult") -> dict[str, pa.Table]:
         ("runs", runs_table), ("points", points_table), ("fits", fits_table),
         ("parameters", parameters_table), ("correlations", correlations_table), ("results", results_table),
         ("checks", checks_table), ("rejected", rejected_table))
-    return {**{name: build(result) for name, build in builders}, **analysis_tables(result)}
+    tables = {name: build(result) for name, build in builders}
+    if result.config.specs:
+        tables["specs"] = specs_table(result)
+    return {**tables, **analysis_tables(result)}
+
+
+def specs_table(result: "StudyResult") -> pa.Table:
+    """specs.parquet: one row per run and applicable rule, with the verdict and its basis.
+
+    ``value``/``stderr``/``min``/``max`` are in SI; their unit label is in ``unit`` (the rules
+    of one table can have different units, so the fields carry no unit metadata).
+    """
+    rows = result.specs
+    return _table({
+        "run_id": ([v.run_id for v in rows], pa.string(), None),
+        "rule": ([v.rule for v in rows], pa.string(), None),
+        "value": ([v.value for v in rows], pa.float64(), None),
+        "stderr": ([v.stderr for v in rows], pa.float64(), None),
+        "min": ([v.min for v in rows], pa.float64(), None),
+        "max": ([v.max for v in rows], pa.float64(), None),
+        "unit": ([v.unit for v in rows], pa.string(), None),
+        "verdict": ([v.verdict for v in rows], pa.string(), None),
+        "straddles_limit": ([v.straddles_limit for v in rows], pa.bool_(), None),
+        "method": ([v.method for v in rows], pa.string(), None),
+        "message": ([v.message for v in rows], pa.string(), None),
+    })

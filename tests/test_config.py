@@ -54,7 +54,8 @@ def test_valid_study_toml_is_read_in_si(tmp_path: Path, registry) -> None:
     assert bob.values["rotating"] == "inner"          # documented default
     assert config.geometries["cone50"].values["cone_angle"] == pytest.approx(math.pi / 180)
     assert config.fit.models == ("power_law", "newtonian")
-    assert config.specs[0]["quantity"] == "viscosity"
+    assert config.specs[0].quantity == "viscosity" and config.specs[0].maximum == pytest.approx(3.5)
+    assert 10.0 in config.fit.shear_rates  # the spec's rate is derived too
 
 
 def test_no_study_toml_gives_defaults(tmp_path: Path, registry) -> None:

@@ -213,7 +213,8 @@ def _delays(rng: random.Random, n: int, span: float) -> list[float]:
 
 def test_killing_a_run_at_random_moments_never_leaves_a_mix(tmp_path: Path, registry) -> None:
     """12 trials: SIGKILL at a random moment of a run (half of them with the cache emptied
-    first, so that the kill also falls into importing and fitting)."""
+    first, so that the kill also falls into importing and fitting), plus a kill at once and
+    a run left to finish."""
     inputs = _study(tmp_path / "study")
     out = tmp_path / "out"
     states = {False: clean_run_outputs(inputs.root, registry, tmp_path)}
@@ -229,18 +230,23 @@ def test_killing_a_run_at_random_moments_never_leaves_a_mix(tmp_path: Path, regi
         durations[cached] = _timed(run)
     rng = random.Random(20260302)
     trials, outcomes = 12, []
-    delays = {c: iter(_delays(rng, trials // 2, 1.2 * durations[c])) for c in (True, False)}
+    delays = {c: _delays(rng, trials // 2, 1.2 * durations[c]) for c in (True, False)}
+    # Two fixed trials make sure kills land both before and after the switch even when the
+    # machine's speed during the trials differs from the timing run: at once, and never.
+    delays[False] += [0.0]
+    delays[True] += [60.0 * durations[True] + 5.0]
+    schedule = iter([(trial % 4 < 2, trial) for trial in range(trials)] + [(False, trials), (True, trials + 1)])
+    pending = {c: iter(delays[c]) for c in (True, False)}
     extra = False
-    for trial in range(trials):
+    for cached, trial in schedule:
         extra = not extra
         if extra:
             inputs.write("extra.csv", export_bytes("E", 5.0, 0.3))
         else:
             inputs.remove("extra.csv")
-        cached = trial % 4 < 2
         if not cached:
             _clear_cache(out)
-        delay = next(delays[cached])
+        delay = next(pending[cached])
         killed = _kill_after(_in_child(run), delay)
         seen = output_files(out)
         note = f"trial {trial}, kill after {delay:.3f} s, cache {'kept' if cached else 'emptied'}"
