@@ -17,16 +17,19 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Mapping, Sequence
 
 import numpy as np
 
-from .identifiability import Profile, assess
+from .identifiability import assess
 from .least_squares import CurveFit, Objective, fit_curve
 from .model_selection import information_criteria, select_model
 from .records import Model
 
-__all__ = ["FitResult", "ParameterEstimate", "failed_fit", "fit_model", "select_model"]
+__all__ = ["FitResult", "ParameterEstimate", "PreparedFit", "failed_fit", "fit_model", "prepare_fit", "profiled",
+           "select_model", "summarise"]
+
+PROFILE_MARGIN = 10.0  # AICc units: fits this close to a run's best get the full identifiability rule
 
 
 @dataclass(frozen=True)
@@ -89,13 +92,41 @@ def failed_fit(model: Model, n_points: int, message: str) -> FitResult:
     return FitResult(model.id, False, n_points, None, None, None, message, None, None, params)
 
 
-def fit_model(model: Model, shear_rate: np.ndarray, values: np.ndarray,
-              objective: Objective = Objective()) -> FitResult:
-    """Fit ``model`` to (shear rate 1/s, its target values in SI) with ``objective``.
+@dataclass
+class PreparedFit:
+    """A model fitted to one run's points, before its parameters are judged: what the
+    identifiability profiles need (the data as fitted, the objective, the engine's answer)."""
 
-    Points that are not finite and positive in both arrays are ignored. Returns a failed
-    :class:`FitResult` (never raises for bad data) when there are not more points than
-    parameters; exceptions from the model's own functions propagate (the caller names the plugin).
+    model: Model
+    x: np.ndarray
+    y: np.ndarray
+    y_fit: np.ndarray
+    factor: np.ndarray | None
+    objective: Objective
+    curve: CurveFit
+
+    def aicc(self) -> float:
+        """AICc of the fit (+inf when it did not converge or has too few points)."""
+        if not self.curve.success:
+            return math.inf
+        return information_criteria(self.curve.rss, len(self.x), len(self.model.parameters))[0]
+
+    def profile(self, name: str, value: float) -> float:
+        """Residual sum of squares with ``name`` held at ``value``, the others refitted from
+        the solution."""
+        start = {n: float(v) for n, v in zip(self.curve.names, self.curve.values)}
+        start[name] = value
+        return fit_curve(self.model, self.x, self.y_fit, start, self.objective, factor=self.factor,
+                         fixed={name: value}).rss
+
+
+def prepare_fit(model: Model, shear_rate: np.ndarray, values: np.ndarray,
+                objective: Objective = Objective()) -> PreparedFit | FitResult:
+    """Fit ``model`` to (shear rate 1/s, its target values in SI): the engine's answer, or a
+    failed :class:`FitResult` when there are not more usable points than parameters.
+
+    Points that are not finite and positive in both arrays are ignored. Exceptions from the
+    model's own functions propagate (the caller names the plugin).
     """
     shear_rate, values = np.asarray(shear_rate, float), np.asarray(values, float)
     keep = np.isfinite(shear_rate) & np.isfinite(values) & (shear_rate > 0) & (values > 0)
@@ -107,30 +138,47 @@ def fit_model(model: Model, shear_rate: np.ndarray, values: np.ndarray,
     on_stress = objective.space == "linear" and model.target == "viscosity"
     y_fit, factor = (y * x, x) if on_stress else (y, None)
     curve = fit_curve(model, x, y_fit, starts, objective, factor=factor)
-
-    def profile(name: str, value: float) -> float:
-        """Residual sum of squares with ``name`` held at ``value``, the others refitted."""
-        start = {n: float(v) for n, v in zip(curve.names, curve.values)}
-        start[name] = value
-        return fit_curve(model, x, y_fit, start, objective, factor=factor, fixed={name: value}).rss
-
-    return summarise(model, curve, x, y, profile)
+    return PreparedFit(model, x, y, y_fit, factor, objective, curve)
 
 
-def summarise(model: Model, curve: CurveFit, x: np.ndarray, y: np.ndarray,
-              profile: Profile | None = None) -> FitResult:
+def fit_model(model: Model, shear_rate: np.ndarray, values: np.ndarray,
+              objective: Objective = Objective()) -> FitResult:
+    """Fit ``model`` to one data set and judge its parameters with the full identifiability
+    rule (:func:`prepare_fit`, then :func:`summarise`)."""
+    prepared = prepare_fit(model, shear_rate, values, objective)
+    return prepared if isinstance(prepared, FitResult) else summarise(prepared)
+
+
+def profiled(prepared: Sequence[PreparedFit | FitResult]) -> set[int]:
+    """Which fits of one run get the profile part of the identifiability rule: those within
+    ``PROFILE_MARGIN`` AICc units of the run's best. A fit much worse than the best cannot be
+    selected; its parameters are judged by the covariance alone (saves the refits)."""
+    aiccs = {i: p.aicc() for i, p in enumerate(prepared) if isinstance(p, PreparedFit)}
+    finite = [a for a in aiccs.values() if math.isfinite(a)]
+    if not finite:
+        return set(aiccs)
+    best = min(finite)
+    return {i for i, a in aiccs.items() if not a > best + PROFILE_MARGIN}
+
+
+def summarise(prepared: PreparedFit, profiles: bool = True) -> FitResult:
     """The run-level record of a curve fit: criteria, rmse_log, identified parameters
-    (``profile`` refits with one parameter held, for the identifiability rule)."""
+    (``profiles=False``: the identifiability rule without its profile refits)."""
+    model, curve, x, y = prepared.model, prepared.curve, prepared.x, prepared.y
     n, k = len(x), len(model.parameters)
-    best = {name: float(v) for name, v in zip(curve.names, curve.values)}
-    with np.errstate(all="ignore"):
-        log_residual = np.log(np.asarray(model.function(x, **best), dtype=float)) - np.log(y)
+    best = dict(zip(curve.names, curve.values.tolist()))
+    objective = prepared.objective
+    if objective.space == "log" and objective.weights == "none" and objective.loss == "linear":
+        log_residual = curve.residual  # the objective's residuals are ln f − ln y already
+    else:
+        with np.errstate(all="ignore"):
+            log_residual = np.log(np.asarray(model.function(x, **best), dtype=float)) - np.log(y)
     if not curve.success:
         return _without_parameters(model, n, x, f"did not converge: {curve.message}")
     if not np.all(np.isfinite(log_residual)):
         return _without_parameters(model, n, x, "the model gives non-positive or undefined values at the data")
     aicc, bic = information_criteria(curve.rss, n, k)
-    verdicts = assess(curve, model.parameters, profile)
+    verdicts = assess(curve, model.parameters, prepared.profile if profiles else None)
     estimates = tuple(
         ParameterEstimate(spec.name, best[spec.name], float(curve.stderr[j]), spec.unit)
         if verdict.reason is None else
@@ -154,7 +202,13 @@ def _without_parameters(model: Model, n: int, x: np.ndarray, message: str) -> Fi
 
 
 def _correlations(curve: CurveFit) -> tuple[tuple[str, str, float], ...]:
-    matrix = curve.correlation().tolist()
-    names = curve.names
-    return tuple((names[i], names[j], min(1.0, max(-1.0, matrix[i][j])))
-                 for i in range(len(names)) for j in range(i + 1, len(names)) if math.isfinite(matrix[i][j]))
+    """(name, name, r) for every pair with standard errors: r = C_ij/(σ_i σ_j), clipped to ±1.
+    A handful of scalars: plain floats are faster than numpy here."""
+    cov, se, names = curve.covariance.tolist(), curve.stderr.tolist(), curve.names
+    pairs = []
+    for i in range(len(names)):
+        for j in range(i + 1, len(names)):
+            scale = se[i] * se[j]
+            if math.isfinite(cov[i][j]) and math.isfinite(scale) and scale > 0:
+                pairs.append((names[i], names[j], min(1.0, max(-1.0, cov[i][j] / scale))))
+    return tuple(pairs)

@@ -8,7 +8,7 @@ fit's message). Two kinds of parameter are judged differently:
 infinite-shear viscosity η∞) may be exactly 0, which leaves the simpler model (no yield stress,
 no upper plateau). Such a parameter is not identified, **consistent with zero**, when it stopped
 at 0, when |value| < 2·stderr, or, for a relative standard error between
-``CLEARLY_DETERMINED`` (10 %) and 50 %, when holding it at 0 (the others refitted) raises the
+``CLEARLY_DETERMINED`` (20 %) and 50 %, when holding it at 0 (the others refitted) raises the
 residual sum of squares by less than the 95 % F-test threshold F(1, n − k)·s².
 
 Every other parameter is not identified when:
@@ -18,15 +18,18 @@ Every other parameter is not identified when:
 2. the Jacobian is singular in its direction: the data cannot separate it from the others;
 3. its standard error exceeds half its magnitude (``RELATIVE_STDERR_LIMIT``) — η0 and λ of a
    curve without its lower plateau, an exponent over too short a range;
-4. its relative standard error lies between 10 % and 50 % and holding it at half or twice its
+4. its relative standard error lies between 20 % and 50 % and holding it at half or twice its
    value (the others refitted: a profile) raises the residual sum of squares by less than the
    same F-test threshold. In the linear regime this means a relative standard error above
    ≈ 25 %; along a curved ridge (η0 and λ without a lower plateau) the profile catches what the
    local covariance misses.
 
 Profiles follow Bates & Watts, *Nonlinear Regression Analysis and Its Applications*, Wiley
-1988, §6.1 (likelihood-ratio / F-test inference); they cost two refits for the few parameters
-in the doubtful band and none on good data. A fit whose parameters are all identified or
+1988, §6.1 (likelihood-ratio / F-test inference). They cost a refit or two, only for parameters
+in the doubtful band (20–50 %, where the linear approximation is near the decision threshold),
+and in a study only for fits within 10 AICc units of the run's best (``gammadot.fitting.profiled``):
+a fit much worse than the best cannot be selected, and its parameters are judged by the
+covariance alone. A fit whose parameters are all identified or
 vanish is *supported* by the data (the model selection uses only such fits when there are any:
 :mod:`gammadot.model_selection`). The parameter's own ``when_unidentified`` text is added as
 the usual physical reason.
@@ -34,6 +37,7 @@ the usual physical reason.
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import Callable, Sequence
@@ -42,7 +46,7 @@ from .least_squares import CurveFit
 from .records import ModelParameter
 
 RELATIVE_STDERR_LIMIT = 0.5
-CLEARLY_DETERMINED = 0.1
+CLEARLY_DETERMINED = 0.2
 PROFILE_FACTORS = (0.5, 2.0)
 CONFIDENCE = 0.95
 
@@ -115,13 +119,18 @@ def _ordinary(curve: CurveFit, j: int, spec: ModelParameter, profile: Profile | 
 def _flat(curve: CurveFit, profile: Profile, name: str, held: float) -> bool:
     """True when the best fit with ``name`` held at ``held`` is within the 95 % F-test
     threshold F(1, n − k)·s² of the best fit (Bates & Watts 1988, §6.1)."""
-    from scipy.stats import f as f_distribution
-
     dof = curve.n_points - curve.n_free
     if dof <= 0:
         return False
-    threshold = float(f_distribution.ppf(CONFIDENCE, 1, dof)) * curve.rss / dof
-    return profile(name, held) - curve.rss < threshold
+    return profile(name, held) - curve.rss < f_quantile(dof) * curve.rss / dof
+
+
+@functools.lru_cache(maxsize=256)
+def f_quantile(dof: int) -> float:
+    """F(1, dof) at the ``CONFIDENCE`` level (scipy.stats; cached per degrees of freedom)."""
+    from scipy.stats import f as f_distribution
+
+    return float(f_distribution.ppf(CONFIDENCE, 1, dof))
 
 
 def _quantity(value: float, unit: str) -> str:

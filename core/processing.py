@@ -7,13 +7,14 @@ a failed fit) naming the plugin, and the run and the study go on.
 from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
+from typing import Callable
 
 import numpy as np
 
 from .config import FitConfig, GeometryConfig, StudyConfig, check_settings
 from .datamodel import Run
 from .derived_results import derived_results
-from .fitting import FitResult, failed_fit, fit_model
+from .fitting import FitResult, PreparedFit, failed_fit, prepare_fit, profiled, summarise
 from .least_squares import Objective
 from .model_selection import select_model
 from .records import CheckContext, Conversion, Finding, Result
@@ -145,25 +146,39 @@ def objective_of(config: FitConfig) -> Objective:
 
 
 def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
-    """Fit every selected model to the run's included points and mark the selected one."""
+    """Fit every selected model to the run's included points and mark the selected one.
+
+    Two passes: every model is fitted, then each fit's parameters are judged (with the
+    identifiability profiles for the fits near the run's best AICc: ``fitting.profiled``).
+    """
     model_ids = config.fit.models or tuple(registry.models)
     objective = objective_of(config.fit)
     rate = run.columns.get("shear_rate")
-    fits = []
+    n_points = int((~excluded).sum())
+    prepared: list[PreparedFit | FitResult] = []
     for model_id in model_ids:
         provided = registry.models[model_id]
-        model = provided.record
-        target = run.columns.get(model.target)
+        target = run.columns.get(provided.record.target)
         if rate is None or target is None:
-            missing = "shear rate" if rate is None else model.target.replace("_", " ")
-            fits.append(failed_fit(model, 0, f"no {missing}"))
+            missing = "shear rate" if rate is None else provided.record.target.replace("_", " ")
+            prepared.append(failed_fit(provided.record, 0, f"no {missing}"))
             continue
-        try:
-            fits.append(fit_model(model, rate[~excluded], target[~excluded], objective))
-        except Exception as exc:
-            fits.append(failed_fit(model, int((~excluded).sum()),
-                                   f"model plugin '{provided.plugin}' failed: {type(exc).__name__}: {exc}"))
+        prepared.append(_guarded(provided, n_points, lambda m=provided.record, t=target:
+                                 prepare_fit(m, rate[~excluded], t[~excluded], objective)))
+    near_best = profiled(prepared)
+    fits = [p if isinstance(p, FitResult) else
+            _guarded(registry.models[model_id], n_points, lambda p=p, full=i in near_best: summarise(p, full))
+            for i, (model_id, p) in enumerate(zip(model_ids, prepared))]
     return select_model(fits, {m: len(registry.models[m].record.parameters) for m in model_ids})
+
+
+def _guarded(provided: Provided, n_points: int, call: Callable[[], PreparedFit | FitResult]) -> PreparedFit | FitResult:
+    """``call()``, or a failed fit naming the model plugin whose code raised."""
+    try:
+        return call()
+    except Exception as exc:
+        return failed_fit(provided.record, n_points,
+                          f"model plugin '{provided.plugin}' failed: {type(exc).__name__}: {exc}")
 
 
 def run_derived_results(run: Run, excluded: np.ndarray, fits: list[FitResult], config: StudyConfig,
