@@ -43,6 +43,7 @@ import math
 from dataclasses import dataclass, field
 from typing import Callable, Mapping, Sequence
 
+import lmfit
 import numpy as np
 
 from .lmfit_models import as_lmfit_model
@@ -166,7 +167,6 @@ class _Transform:
 
     def __init__(self, model: Model, start: Sequence[float], smooth: bool = False,
                  fixed: Mapping[str, float] | None = None) -> None:
-        template = _parameter_template(model)
         fixed = fixed or {}
         self.kinds: list[tuple[int, float, float, object]] = []
         internal = []
@@ -184,9 +184,8 @@ class _Transform:
             elif not smooth:
                 self.kinds.append((self.CLIP, spec.min, spec.max, None))
                 internal.append(min(max(value, spec.min), spec.max))
-            else:
-                par = template[spec.name]
-                par.value = value  # lmfit clips to the bounds
+            else:  # a fresh lmfit Parameter per fit (rare path): nothing shared between fits
+                par = lmfit.Parameter(spec.name, value=value, min=spec.min, max=spec.max)  # clips to the bounds
                 self.kinds.append((self.SMOOTH, spec.min, spec.max, par))
                 internal.append(par.setup_bounds())
         self.start = np.array(internal)
@@ -245,27 +244,6 @@ class _Transform:
     def held(self) -> np.ndarray:
         """Parameters held at a given value (not fitted)."""
         return np.array([kind[0] == self.FIXED for kind in self.kinds])
-
-
-def _parameter_template(model: Model):  # -> dict[str, lmfit.Parameter]
-    """One lmfit Parameter per model parameter (cached with the lmfit model), bounds set."""
-    lmodel = as_lmfit_model(model)
-    cached = getattr(lmodel, "_gammadot_template", None)
-    if cached is None:
-        params = lmodel.make_params(**{p.name: _inside(p.min, p.max) for p in model.parameters})
-        cached = {name: params[name] for name in params}
-        lmodel._gammadot_template = cached  # type: ignore[attr-defined]
-    return cached
-
-
-def _inside(low: float, high: float) -> float:
-    if math.isfinite(low) and math.isfinite(high):
-        return (low + high) / 2.0
-    if math.isfinite(low):
-        return low + 1.0
-    if math.isfinite(high):
-        return high - 1.0
-    return 0.0
 
 
 class _Problem:
@@ -437,6 +415,7 @@ class _Settings:
 
 def _fit_curve(model: Model, x: np.ndarray, y: np.ndarray, starts: Mapping[str, float] | Sequence[Mapping[str, float]],
                objective: Objective, factor: np.ndarray | None, settings: _Settings) -> CurveFit:
+    as_lmfit_model(model)  # cached; refuses a function whose parameters differ from the declared ones
     names = tuple(p.name for p in model.parameters)
     start_list = [starts] if isinstance(starts, Mapping) else list(starts)
     problem = _Problem(model, x, y, factor, objective)

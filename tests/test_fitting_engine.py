@@ -216,3 +216,35 @@ def test_objective_refuses_unknown_choices() -> None:
         Objective(loss="cauchy")
     with pytest.raises(ValueError, match="weights: 'relative' applies to space = 'linear'"):
         Objective(weights="relative")
+
+
+def test_a_parameter_stuck_at_its_bound_on_the_way_is_freed(monkeypatch) -> None:
+    """A Carreau–Yasuda curve (η∞ = η0/1000 > 0) where the projected bound stops η∞ at 0 on
+    the way: the first-order (KKT) check sees the cost falling towards η∞ > 0, the fit is
+    repeated with lmfit's bound transform, and the answer is the global minimum that
+    differential evolution finds."""
+    import gammadot.least_squares as engine
+
+    rate = np.geomspace(0.01, 1000.0, 40)
+    truth = {"eta0": 84.05059, "eta_inf": 0.08405, "lam": 0.57805, "a": 1.45373, "n": 0.40152}
+    values = noisy(CARREAU_YASUDA.function(rate, **truth), 0.015, seed=43)
+    seen = []
+    check = engine._pulls_off_bound
+    monkeypatch.setattr(engine, "_pulls_off_bound", lambda problem, local: seen.append(check(problem, local)) or seen[-1])
+    fit = fit_curve(CARREAU_YASUDA, rate, values, CARREAU_YASUDA.guess(rate, values))
+    assert seen == [True] and not any(fit.at_bound) and fit.value("eta_inf") > 0
+    box = {"eta0": (0, 4), "eta_inf": (-4, 1), "lam": (-3, 2), "a": (0.2, 5), "n": (0.0, 1.2)}
+    names = [p.name for p in CARREAU_YASUDA.parameters]
+    target = np.log(values)
+
+    def cost(u):
+        columns = np.asarray(u, float).reshape(len(names), -1)
+        params = {n: (c if n in ("a", "n") else 10.0 ** c)[:, None] for n, c in zip(names, columns)}
+        with np.errstate(all="ignore"):
+            r = np.log(CARREAU_YASUDA.function(rate[None, :], **params)) - target
+        total = np.where(np.isfinite(np.sum(r * r, axis=1)), np.sum(r * r, axis=1), 1e300)
+        return total if np.ndim(u) > 1 else float(total[0])
+
+    reference = differential_evolution(cost, [box[n] for n in names], seed=1, tol=1e-10, maxiter=2000,
+                                       popsize=25, polish=True, vectorized=True, updating="deferred")
+    assert fit.rss == pytest.approx(reference.fun, rel=1e-6)
