@@ -1,16 +1,22 @@
 """Write gammadot's demo study: a fictitious QC lab's flow curves, generated from models.
 
 The scenario is invented from start to finish. **Merrowind Formulations Ltd** (fictitious) makes
-personal-care products and decorative coatings at its Kestle Bridge plant (fictitious). Its QC
-lab measures a flow curve of every production batch on two rotational rheometers (lab assets
-MWF-RH-01 and MWF-RH-02) and files the exports by month and production line:
+personal-care and household products and decorative coatings at its Kestle Bridge plant
+(fictitious). Its QC lab measures a flow curve of every production batch on two rotational
+rheometers (lab assets MWF-RH-01 and MWF-RH-02) and files the exports by month and production line:
 
-- Softmere body lotion, batches LT-2611 and LT-2612: shear-thinning (Carreau);
+- Softmere body lotion, batches LT-2611, LT-2612 and LT-2613: shear-thinning (Carreau); LT-2613
+  came out thin (the demo's failing batch) and was measured twice;
 - Harbourline satin wall paint, batch PT-2611: shear-thinning (Cross);
+- Harbourline non-drip gloss, batch PG-2612: a thixotropic gel paint, measured up and down in
+  rate from rest;
 - Calmora zinc barrier ointment, batch ZB-2611: yield stress (Casson);
-- hand-cream base HCB-2612: yield stress (Herschel–Bulkley);
+- hand-cream base HCB-2612: yield stress (Herschel–Bulkley), repeated once with the cup filled
+  below the mark;
 - Tessel tile-joint paste JP-2612: yield stress (Bingham);
-- in-house check oil RO-0926: near-Newtonian reference;
+- in-house check oil RO-0926: near-Newtonian reference, also run down to the torque floor;
+- Glintmere rinse aid RA-2612: a thin Newtonian liquid (3.5 mPa·s) in the cup, at speeds
+  where Taylor vortices form and with a fast method whose steps are too short for it;
 - Aldercove styling gel SG-2612: yield stress (Herschel–Bulkley) that slips on smooth plates,
   measured at two gaps (1.0 mm from study.toml, 0.5 mm from the run's own ``gap:`` line);
 - Drayhold XV-40 viscosifier, lot XV-2612, checked in the lab's reference mud on a six-speed
@@ -32,13 +38,38 @@ the geometry's physics (SI units; Ω angular velocity in rad/s, M torque in N·m
 - direct-indicating viscometer: the same Couette relation with the R1-B1 radius ratio; the
   dial shows the bob stress over 0.511 Pa per degree, read to half a degree.
 
+Beyond steady laminar shear, with the study's one density ρ = 1020 kg/m³:
+
+- Taylor vortices (inner cylinder turning): above the critical Reynolds number
+  Re_c = Ω_c·Ri·d/ν (d = Ro − Ri), from Taylor's small-gap approximation (see
+  :func:`taylor_critical_reynolds`), the torque rises above the laminar one as
+  M/M_lam = (Re/Re_c)^½ — the demo's own smooth form, continuous at onset, growing like Re^{3/2}
+  as vortex-flow torques are reported to do (order of magnitude; the demo needs a clear rise,
+  not a vortex-flow law). Re uses the laminar viscosity at the inner wall;
+- start-up of each step (Newtonian samples): the flow across the gap h (plate gap, αR for a
+  cone, Ro − Ri for cylinders) develops by momentum diffusion, and the turning member's wall
+  stress after a speed change is the steady value plus the change times
+  2Σ exp(−n²π²t/t_ν), t_ν = ρh²/η (plane Couette start-up, moving wall; superposed step by
+  step). The instrument records the torque at the end of each step;
+- thixotropy (PG-2612): a Moore-type structure parameter s (1 rested, 0 broken down) with
+  ds/dt = k[(1 − s) − (λγ̇)^m·s]; at fixed s the paint is Newtonian with
+  η = η∞ + (η0 − η∞)s, and the steady state is the Cross model. On each step at constant rate
+  s relaxes exponentially (closed form). A rested gel taken up in rate keeps most of its
+  structure at low rates and breaks down once it has been sheared long and fast enough, so the
+  stress of the rising sweep passes through a maximum and falls at the highest rates; on the way
+  down the structure rebuilds slowly (1/k ≈ 5 min), so the down curve lies far below the up curve;
+- sample loss (cone-plate, LT-2613 repeat): above a rate γ̇_L the sample is thrown out at the
+  rim and the filled radius shrinks as R_f = R(γ̇_L/γ̇)^½;
+- under-filling (cylinders, HCB-2612 repeat): only a fraction of the immersed length is wetted.
+
 Then the artefacts of a real lab: 1.5 % multiplicative torque noise, an additive noise of
 0.08 µN·m at the instrument's resolution floor (visible at the lowest torques of the check
-oil), one clear outlier (an air bubble in LT-2611 at 20 °C) and one export that is broken on
-purpose and must be rejected. "Instrument-computed" exports hold the shear rate, stress and
-viscosity an instrument computes from a cone-plate's torque and speed; raw exports hold only
-torque and speed, and their geometry is defined in ``study.toml``. The exports use several
-text dialects (delimiters, decimal marks, encodings, unit spellings, several runs per file).
+oil, where a reading can even come out negative), one clear outlier (an air bubble in LT-2611
+at 20 °C) and one export that is broken on purpose and must be rejected. "Instrument-computed"
+exports hold the shear rate, stress and viscosity an instrument computes from a cone-plate's
+torque and speed; raw exports hold only torque and speed, and their geometry is defined in
+``study.toml``. The exports use several text dialects (delimiters, decimal marks, encodings,
+unit spellings, several runs per file).
 
 Pure numpy/scipy and the standard library; deterministic (fixed seed per run), so two calls
 write byte-identical files.
@@ -57,6 +88,9 @@ from scipy.optimize import brentq
 
 __all__ = [
     "DEMO_SEED",
+    "DENSITY",
+    "EXAMPLE_SPECS",
+    "TORQUE_LIMITS",
     "ConcentricCylinder",
     "ConePlate",
     "DirectIndicating",
@@ -69,6 +103,11 @@ __all__ = [
     "demo_truth",
     "parallel_plate_torque",
     "slipping_stress",
+    "startup_stress_ratio",
+    "structure_after_steps",
+    "structured_viscosity",
+    "taylor_critical_reynolds",
+    "taylor_torque_factor",
     "write_demo_study",
 ]
 
@@ -78,6 +117,11 @@ TORQUE_FLOOR = 0.08e-6  # N·m, standard deviation of the additive noise at the 
 OUTLIER_FACTOR = 1.45  # torque multiplier of the one outlier point (air bubble)
 GAS_CONSTANT = 8.314462618  # J/(mol·K)
 REFERENCE_TEMPERATURE = 20.0  # °C, temperature of the tabulated sample parameters
+DENSITY = 1020.0  # kg/m³: one density for every sample, as study.toml's [study] density
+# N·m: the torque range study.toml gives the (invented) rheometers: a resolvable minimum of ten
+# times the noise at the resolution floor (a reading below it scatters by more than 10 %), and a
+# maximum well above every torque simulated.
+TORQUE_LIMITS = (0.8e-6, 0.15)
 
 
 # --------------------------------------------------------------------------- models
@@ -321,9 +365,9 @@ class ConcentricCylinder:
         """Radius ratio δ = Ro/Ri (1)."""
         return self.outer_radius / self.inner_radius
 
-    def torque(self, model: FlowModel, omega: float) -> float:
-        """Torque (N·m) at Ω (rad/s): M = 2πRi²Lτ_i."""
-        return couette_torque(model, omega, self)
+    def torque(self, model: FlowModel, omega: float, density: float = 0.0) -> float:
+        """Torque (N·m) at Ω (rad/s): M = 2πRi²Lτ_i, raised by Taylor vortices for ρ > 0 (kg/m³)."""
+        return couette_torque(model, omega, self, density)
 
     def speed_for(self, rate: float) -> float:
         """Ω (rad/s) giving the Newtonian inner-wall rate ``rate`` (1/s): Ω = γ̇(δ²−1)/(2δ²)."""
@@ -340,10 +384,91 @@ class ConcentricCylinder:
                 ("immersed_length", _mm(self.immersed_length)), ("rotating", "inner")]
 
 
-def couette_torque(model: FlowModel, omega: float, geometry: ConcentricCylinder) -> float:
-    """Torque (N·m) on the inner cylinder turning at Ω (rad/s): M = 2πRi²Lτ_i."""
+def couette_torque(model: FlowModel, omega: float, geometry: ConcentricCylinder,
+                   density: float = 0.0) -> float:
+    """Torque (N·m) on the inner cylinder turning at Ω (rad/s): M = 2πRi²Lτ_i.
+
+    With a density ρ (kg/m³) the laminar torque is raised by Taylor vortices where the inner
+    cylinder's Reynolds number ρΩRi·d/η_i (η_i = τ_i/γ̇_i, the laminar viscosity at the inner
+    wall) exceeds :func:`taylor_critical_reynolds`, by :func:`taylor_torque_factor`.
+    """
     tau_i = couette_inner_stress(model, omega, geometry.delta)
-    return 2.0 * math.pi * geometry.inner_radius**2 * geometry.immersed_length * tau_i
+    torque = 2.0 * math.pi * geometry.inner_radius**2 * geometry.immersed_length * tau_i
+    if density <= 0.0 or tau_i <= 0.0:
+        return torque
+    wall_rate = model.rate(tau_i)
+    if wall_rate <= 0.0:
+        return torque
+    gap = geometry.outer_radius - geometry.inner_radius
+    reynolds = density * omega * geometry.inner_radius * gap / (tau_i / wall_rate)
+    return torque * taylor_torque_factor(reynolds, taylor_critical_reynolds(geometry.inner_radius,
+                                                                            geometry.outer_radius))
+
+
+# ------------------------------------------------------- inertia, start-up, structure
+
+
+def taylor_critical_reynolds(inner_radius: float, outer_radius: float) -> float:
+    """Re_c = Ω_c·Ri·d/ν at the onset of Taylor vortices, inner cylinder turning, outer fixed.
+
+    Taylor's approximation for small gaps (Phil. Trans. R. Soc. A 223 (1923) 289; the form and
+    its coefficients as usually quoted, from memory):
+    Ω_c² = π⁴ν²(Ri + Ro)/(2P·d³·Ri²), P = 0.0571(1 − 0.652 d/Ri) + 0.00056/(1 − 0.652 d/Ri),
+    d = Ro − Ri. The tests compare it with the eigenvalue table of the shared reference sheet.
+    """
+    gap = outer_radius - inner_radius
+    shape = 1.0 - 0.652 * gap / inner_radius
+    p = 0.0571 * shape + 0.00056 / shape
+    return math.sqrt(math.pi**4 * (inner_radius + outer_radius) / (2.0 * p * gap))
+
+
+def taylor_torque_factor(reynolds: float, critical: float) -> float:
+    """M/M_lam: 1 up to Re_c, (Re/Re_c)^½ above it (the demo's own smooth vortex-torque form)."""
+    return math.sqrt(reynolds / critical) if reynolds > critical else 1.0
+
+
+def startup_stress_ratio(time_ratio: Any, wall: str = "moving") -> np.ndarray:
+    """Wall stress / its steady value after plane Couette flow starts from rest, at
+    t/t_ν = ``time_ratio`` (t_ν = ρh²/η): moving wall 1 + 2Σ exp(−n²π²t*), fixed wall
+    1 + 2Σ(−1)ⁿ exp(−n²π²t*), n ≥ 1 (summed until the terms underflow)."""
+    ratio = np.asarray(time_ratio, dtype=float)
+    return (1.0 + _startup_excess(np.atleast_1d(ratio), wall)).reshape(ratio.shape)
+
+
+def _startup_excess(time_ratio: np.ndarray, wall: str = "moving") -> np.ndarray:
+    """2Σ (±1)ⁿ exp(−n²π²t*): 0.0 exactly once every term underflows (long steps)."""
+    smallest = float(np.min(time_ratio))
+    if not smallest > 0.0:
+        raise ValueError("start-up times must be positive")
+    terms = int(math.ceil(math.sqrt(800.0 / (math.pi**2 * smallest)))) + 1
+    n = np.arange(1, terms + 1, dtype=float)[:, None]
+    sign = np.ones_like(n) if wall == "moving" else (-1.0) ** n
+    return 2.0 * np.sum(sign * np.exp(-(n**2) * math.pi**2 * time_ratio[None, :]), axis=0)
+
+
+def structure_after_steps(model: FlowModel, build_rate: float, rates: Any, durations: Any,
+                          start: float = 1.0) -> np.ndarray:
+    """Structure parameter s at the end of each step of constant shear rate (1/s) and duration (s).
+
+    Moore-type kinetics with the Cross model as steady state: ds/dt = k[(1 − s) − (λγ̇)^m·s]
+    (``build_rate`` k in 1/s; λ and m the Cross parameters of ``model``). At constant γ̇,
+    s(t) = s_e + (s₀ − s_e)·exp(−k(1 + (λγ̇)^m)t) with s_e = 1/(1 + (λγ̇)^m).
+    """
+    if model.name != "cross":
+        raise ValueError("the structure kinetics are written for a Cross steady state")
+    lam, m = model.params["lam"], model.params["m"]
+    s, ends = start, []
+    for rate, duration in zip(np.asarray(rates, dtype=float), np.asarray(durations, dtype=float)):
+        breakdown = (lam * rate) ** m
+        steady = 1.0 / (1.0 + breakdown)
+        s = steady + (s - steady) * math.exp(-build_rate * (1.0 + breakdown) * duration)
+        ends.append(s)
+    return np.array(ends)
+
+
+def structured_viscosity(model: FlowModel, structure: float) -> float:
+    """η (Pa·s) of the Cross-model sample at structure s: η∞ + (η0 − η∞)s (Newtonian at fixed s)."""
+    return model.params["eta_inf"] + (model.params["eta0"] - model.params["eta_inf"]) * structure
 
 
 @dataclass(frozen=True)
@@ -421,6 +546,7 @@ class Sample:
     activation_energy: float
     yield_drop: float = 0.0
     slip: float = 0.0  # m/(s·Pa): wall-slip velocity per unit stress on smooth plates
+    thixotropy: float = 0.0  # 1/s: structure build-up rate k (Cross samples; 0: no thixotropy)
 
 
 SAMPLES: dict[str, Sample] = {s.code: s for s in (
@@ -441,6 +567,11 @@ SAMPLES: dict[str, Sample] = {s.code: s for s in (
            {"tau_y": 18.0, "K": 9.0, "n": 0.42}, 15e3, 0.004, slip=4e-5),
     Sample("XV-2612", "Drayhold XV-40 viscosifier in reference mud", "herschel_bulkley",
            {"tau_y": 3.2, "K": 0.28, "n": 0.6}, 12e3, 0.002),
+    Sample("RA-2612", "Glintmere rinse aid", "newtonian", {"eta": 3.5e-3}, 17e3),
+    Sample("LT-2613", "Softmere body lotion", "carreau",
+           {"eta0": 24.0, "eta_inf": 0.012, "lam": 5.0, "n": 0.36}, 32e3),
+    Sample("PG-2612", "Harbourline non-drip gloss gel paint", "cross",
+           {"eta0": 20.0, "eta_inf": 0.08, "lam": 0.5, "m": 0.9}, 24e3, thixotropy=0.003),
 )}
 
 _SHIFTED = frozenset({"eta", "eta0", "eta_inf", "eta_p", "eta_c", "K", "lam"})
@@ -471,6 +602,17 @@ class RunPlan:
     note: str
     outlier_index: int | None = None
     gap: float | None = None  # m: a gap other than study.toml's, written as the run's ``gap:`` line
+    up_and_down: bool = False  # the rates rise, then fall back through the same steps
+    step_durations: tuple[float, float] | None = None  # s: first and last step, log-spaced between
+    filled: float = 1.0  # cylinders: fraction of the immersed length actually wetted
+    loss_rate: float | None = None  # 1/s: cone-plate, sample thrown out at the rim above this rate
+    rest_reading: bool = False  # a first row logged at rest (speed 0): the torque's zero reading
+
+    @property
+    def n_points(self) -> int:
+        """Rows of the run: ``points`` up, ``points`` − 1 back down for an up-and-down run, and
+        the row at rest."""
+        return (2 * self.points - 1 if self.up_and_down else self.points) + self.rest_reading
 
 
 @dataclass(frozen=True)
@@ -619,6 +761,57 @@ EXPORTS: tuple[ExportPlan, ...] = (
         (RunPlan("LT-2612", 40.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-12-15",
                  "repeat run; transfer to the lab share was interrupted"),),
         raw=False, instrument=_RIG_1, broken=True),
+    # Runs added so that every data-quality check has something real to find (see README.txt).
+    ExportPlan(
+        "exports/2026-12/line-c/RA-2612_rinse-aid.csv",
+        Dialect("utf-8", ",", ".", "\n", ":", "[]"),
+        (Column("time", "Time", "s", decimals=2), Column("angular_velocity", "Rotational speed", "1/min", RPM, sig=4),
+         Column("torque", "Torque", "µN·m", 1e6, decimals=3),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("RA-2612", 20.0, "bob25-cup29", 10.0, 1500.0, 16, "R. Okafor-Lind", "2026-12-16",
+                 "cup filled to the mark; thin-liquid method up to 1500 1/s"),
+         RunPlan("RA-2612", 20.0, "bob25-cup29", 10.0, 100.0, 10, "R. Okafor-Lind", "2026-12-16",
+                 "fast screening method: point duration 4 s falling to 0.3 s", step_durations=(4.0, 0.3))),
+        raw=True, instrument=_RIG_2),
+    ExportPlan(
+        "exports/2026-12/RO-0926_check-oil_low-rates.csv",
+        Dialect("utf-8", ";", ".", "\n", "=", "()"),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rad/s", sig=4),
+         Column("torque", "Torque", "µN·m", 1e6, decimals=3),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("RO-0926", 20.0, "cone50-1deg", 0.01, 100.0, 17, "T. Vesna", "2026-12-02",
+                 "monthly low-rate check of rig 1 with the check oil from 0.01 1/s - first row: zero reading at rest",
+                 rest_reading=True),),
+        raw=True, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/line-a/LT-2613_body-lotion.csv",
+        Dialect("utf-8", ";", ",", "\r\n", ":", "[]"),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rpm", RPM, sig=4),
+         Column("torque", "Torque", "µN·m", 1e6, decimals=2),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("LT-2613", 20.0, "cone50-1deg", 0.1, 1000.0, 21, "I. Haldane", "2026-12-17", _PRESHEAR),
+         RunPlan("LT-2613", 20.0, "cone50-1deg", 0.1, 10.0**3.4, 23, "I. Haldane", "2026-12-17",
+                 f"{_PRESHEAR} - second loading to confirm the first - rates extended to 2500 1/s",
+                 loss_rate=700.0)),
+        raw=True, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/PG-2612_gel-gloss_up-down.csv",
+        Dialect("cp1252", ";", ",", "\r\n", ";", "[]", title_keys=True),
+        (Column("time", "Time", "s", decimals=1), Column("shear_rate", "Shear rate", "1/s"),
+         Column("shear_stress", "Shear stress", "Pa"), Column("viscosity", "Viscosity", "Pa·s")),
+        (RunPlan("PG-2612", 20.0, "cone50-1deg", 0.1, 500.0, 13, "R. Okafor-Lind", "2026-12-09",
+                 "loaded and rested 15 min without pre-shear - rates up then down (thixotropy loop) - "
+                 "computed by the instrument from cone 50 mm / 1 deg", up_and_down=True),),
+        raw=False, instrument=_RIG_1),
+    ExportPlan(
+        "exports/2026-12/line-b/HCB-2612_hand-cream-base_repeat.tsv",
+        Dialect("utf-16-bom", "\t", ".", "\r\n", ":", "[]", title_keys=True),
+        (Column("time", "Time", "s", decimals=1), Column("angular_velocity", "Speed", "rpm", RPM, sig=4),
+         Column("torque", "Torque", "mN·m", 1e3, decimals=4),
+         Column("temperature", "Temperature", "°C", decimals=2)),
+        (RunPlan("HCB-2612", 20.0, "bob25-cup29", 0.1, 400.0, 18, "R. Okafor-Lind", "2026-12-09",
+                 "repeat on a second loading; 5 min thermal rest", filled=0.85),),
+        raw=True, instrument=_RIG_2),
 )
 
 _BROKEN_ROW = 8  # data row replaced by instrument error cells in the broken export
@@ -651,6 +844,10 @@ def _speeds(plan: RunPlan, export: ExportPlan) -> np.ndarray:
     if isinstance(geometry, DirectIndicating):
         return np.array([geometry.speed_for(rpm) for rpm in DIAL_SPEEDS])
     rates = np.geomspace(plan.rate_min, plan.rate_max, plan.points)
+    if plan.up_and_down:
+        rates = np.concatenate([rates, rates[-2::-1]])
+    if plan.rest_reading:
+        rates = np.concatenate([[0.0], rates])
     omega = np.array([geometry.speed_for(float(r)) for r in rates])
     speed = next((c for c in export.columns if c.quantity == "angular_velocity"), None)
     if speed is None:
@@ -689,6 +886,69 @@ def _step_times(omega: np.ndarray, geometry: Geometry) -> np.ndarray:
     return np.cumsum(8.0 + 30.0 / (1.0 + rates))
 
 
+def step_end_times(plan: RunPlan, omega: np.ndarray) -> np.ndarray:
+    """Elapsed time (s) at the end of each step: the run's own log-spaced step durations, or
+    the lab's default method (longer steps at low shear rates)."""
+    if plan.step_durations is not None:
+        first, last = plan.step_durations
+        return np.cumsum(np.geomspace(first, last, omega.size))
+    return _step_times(omega, geometry_of(plan))
+
+
+def _diffusion_gap(geometry: Geometry) -> float:
+    """Distance (m) momentum crosses at start-up: plate gap, αR at a cone's rim, Ro − Ri."""
+    if isinstance(geometry, ConePlate):
+        return geometry.cone_angle * geometry.radius
+    if isinstance(geometry, ParallelPlate):
+        return geometry.gap
+    return geometry.outer_radius - geometry.inner_radius
+
+
+def _startup_torque(steady: np.ndarray, ends: np.ndarray, diffusion_time: float) -> np.ndarray:
+    """Torque at the end of each step after start-up transients, superposed from rest (t = 0):
+    M_k + Σ_{j≤k} (M_j − M_{j−1})·2Σ exp(−n²π²(t_k − t_{j−1})/t_ν), M_{−1} = 0."""
+    starts = np.concatenate([[0.0], ends[:-1]])
+    changes = np.diff(np.concatenate([[0.0], steady]))
+    measured = steady.copy()
+    for k in range(steady.size):
+        excess = _startup_excess((ends[k] - starts[: k + 1]) / diffusion_time)
+        measured[k] = steady[k] + float(np.sum(changes[: k + 1] * excess))
+    return measured
+
+
+def true_torques(plan: RunPlan, omega: np.ndarray, ends: np.ndarray) -> np.ndarray:
+    """Noise-free torque (N·m) the instrument records at the end of each step of the run."""
+    sample = SAMPLES[plan.sample]
+    model = model_at(sample, plan.temperature)
+    geometry = geometry_of(plan)
+    if isinstance(geometry, ConcentricCylinder) and plan.filled != 1.0:
+        geometry = replace(geometry, immersed_length=geometry.immersed_length * plan.filled)
+    rates, _ = geometry.apparent(omega, np.zeros_like(omega))
+    if sample.thixotropy:
+        durations = np.diff(np.concatenate([[0.0], ends]))
+        structure = structure_after_steps(model, sample.thixotropy, rates, durations)
+        models = [FlowModel("newtonian", {"eta": structured_viscosity(model, s)}) for s in structure]
+    else:
+        models = [model] * omega.size
+    torques = []
+    for w, rate, step_model in zip(omega, rates, models):
+        w = float(w)
+        if isinstance(geometry, ParallelPlate) and sample.slip:
+            torques.append(geometry.torque(step_model, w, sample.slip))
+        elif isinstance(geometry, ConcentricCylinder):
+            torques.append(geometry.torque(step_model, w, DENSITY))
+        elif isinstance(geometry, ConePlate) and plan.loss_rate is not None and rate > plan.loss_rate:
+            filled = replace(geometry, radius=geometry.radius * math.sqrt(plan.loss_rate / rate))
+            torques.append(filled.torque(step_model, w))
+        else:
+            torques.append(geometry.torque(step_model, w))
+    steady = np.array(torques)
+    if model.name != "newtonian":
+        return steady
+    diffusion_time = DENSITY * _diffusion_gap(geometry) ** 2 / model.params["eta"]
+    return _startup_torque(steady, ends, diffusion_time)
+
+
 def simulate_run(plan: RunPlan, export: ExportPlan, seed: Any) -> dict[str, np.ndarray]:
     """One run's point columns in SI units (time s, angular_velocity rad/s, torque N·m,
     temperature °C, shear_rate 1/s, shear_stress Pa, viscosity Pa·s) as the instrument
@@ -699,20 +959,19 @@ def simulate_run(plan: RunPlan, export: ExportPlan, seed: Any) -> dict[str, np.n
     sample = SAMPLES[plan.sample]
     model = model_at(sample, plan.temperature)
     omega = _speeds(plan, export)
-    columns: dict[str, np.ndarray] = {"time": _step_times(omega, geometry), "angular_velocity": omega}
+    ends = step_end_times(plan, omega)
+    columns: dict[str, np.ndarray] = {"time": ends, "angular_velocity": omega}
     if isinstance(geometry, DirectIndicating):
         columns["dial_reading"] = _dial_readings(geometry, model, omega, rng)
         rate, stress = geometry.apparent(omega, columns["dial_reading"])
     else:
-        if isinstance(geometry, ParallelPlate) and sample.slip:
-            true = np.array([geometry.torque(model, float(w), sample.slip) for w in omega])
-        else:
-            true = np.array([geometry.torque(model, float(w)) for w in omega])
-        columns["torque"] = _noisy_torque(true, rng, plan.outlier_index)
+        columns["torque"] = _noisy_torque(true_torques(plan, omega, ends), rng, plan.outlier_index)
         rate, stress = geometry.apparent(omega, columns["torque"])
     temperature = plan.temperature + 0.03 * rng.standard_normal(omega.size)
+    with np.errstate(divide="ignore", invalid="ignore"):  # the row at rest has no viscosity
+        viscosity = stress / rate
     return columns | {"temperature": temperature, "shear_rate": rate, "shear_stress": stress,
-                      "viscosity": stress / rate}
+                      "viscosity": viscosity}
 
 
 # -------------------------------------------------------------------------- writing
@@ -795,16 +1054,41 @@ def _encode(text: str, encoding: str) -> bytes:
     return text.encode(encoding)
 
 
+# Invented example specifications (study.toml [[spec]]): they show how rules work and are nobody's
+# real acceptance limits. Keys as in gammadot.specs; quantities as strings with units.
+EXAMPLE_SPECS: tuple[dict[str, Any], ...] = (
+    {"name": "lotion viscosity at 10 1/s (example)", "quantity": "viscosity", "method": "interpolation",
+     "shear_rate": "10 1/s", "min": "2.5 Pa*s", "max": "4.0 Pa*s", "sample": "LT-*"},
+    {"name": "lotion Carreau index n (example)", "quantity": "parameter", "model": "carreau", "parameter": "n",
+     "max": 0.45, "sample": "LT-*"},
+    {"name": "paint shear-thinning index eta(1/s)/eta(100/s) (example)", "quantity": "viscosity_ratio",
+     "shear_rate": "1 1/s", "shear_rate_2": "100 1/s", "min": 8, "max": 16, "sample": "PT-*"},
+    {"name": "hand-cream base yield stress (example)", "quantity": "yield_stress", "min": "20 Pa",
+     "sample": "HCB-*"},
+    {"name": "joint paste yield stress (example)", "quantity": "yield_stress", "min": "40 Pa", "max": "70 Pa",
+     "sample": "JP-*"},
+    {"name": "rinse aid viscosity at 100 1/s (example)", "quantity": "viscosity", "method": "interpolation",
+     "shear_rate": "100 1/s", "max": "5 mPa*s", "sample": "RA-*"},
+)
+REPORTED_SHEAR_RATES = ("1 1/s", "10 1/s", "100 1/s")
+
+
+def _toml_value(value: Any) -> str:
+    return f'"{value}"' if isinstance(value, str) else f"{value:g}"
+
+
 def study_toml() -> str:
     """The demo's study.toml (quantities as strings with units)."""
+    low, high = TORQUE_LIMITS
     lines = [
         "# gammadot demo study. Merrowind Formulations Ltd and all its products are fictitious.",
         "",
         "[study]",
         'title = "Merrowind QC lab: flow curves of November and December 2026 batches (demo)"',
         'description = "Fictitious demo data generated from models by gammadot. Lotion, paint, '
-        'ointment, hand-cream base, tile-joint paste and a check oil at 20, 25 and 40 °C; a styling gel '
-        'on smooth plates at two gaps; a viscosifier in reference mud on a six-speed viscometer."',
+        'ointment, hand-cream base, tile-joint paste, rinse aid and a check oil at 20, 25 and 40 °C; '
+        'a styling gel on smooth plates at two gaps; a viscosifier in reference mud on a six-speed viscometer."',
+        f'density = "{DENSITY:g} kg/m^3"   # one value for every sample: used by the inertia and steady-state checks',
     ]
     comments = {"truncation": "gap at the flattened cone tip", "shear_rate_factor": "R1-B1 rotor-bob: 1/s per rpm",
                 "stress_factor": "F1 spring: stress per dial degree"}
@@ -812,8 +1096,20 @@ def study_toml() -> str:
         lines += ["", f"[geometries.{gid}]", f'type = "{geometry.kind}"']
         for key, value in geometry.toml_items():
             lines.append(f'{key} = "{value}"' + (f"   # {comments[key]}" if key in comments else ""))
-    lines += ["", "[fit]", 'models = ["newtonian", "power_law"]', ""]
-    return "\n".join(lines)
+    lines += ["", "[limits]   # torque range of the (fictitious) rheometers MWF-RH-01 and MWF-RH-02",
+              f'torque_min = "{low * 1e6:g} uN*m"   # ten times their noise at the resolution floor '
+              f'({TORQUE_FLOOR * 1e6:g} uN*m)',
+              f'torque_max = "{high * 1e3:g} mN*m"',
+              "", "[fit]   # no models list: every installed model is fitted",
+              "shear_rates = [" + ", ".join(f'"{r}"' for r in REPORTED_SHEAR_RATES) + "]",
+              "",
+              "# INVENTED EXAMPLE SPECIFICATIONS for the fictitious products: they show how [[spec]] rules",
+              "# work and are not real acceptance limits for any product. A rule has no temperature",
+              "# condition: it applies to every run of the samples its glob matches, so the lotion limits",
+              "# below were set wide enough for runs at 20 to 40 °C."]
+    for rule in EXAMPLE_SPECS:
+        lines += ["", "[[spec]]"] + [f"{key} = {_toml_value(value)}" for key, value in rule.items()]
+    return "\n".join(lines) + "\n"
 
 
 def _export_kind(export: ExportPlan) -> str:
@@ -824,8 +1120,8 @@ def _export_kind(export: ExportPlan) -> str:
 
 def readme_text() -> str:
     """The study folder's README.txt: the fictitious scenario and what the files show."""
-    products = "\n".join(f"  {s.code:<9} {s.product} ({s.model.replace('_', '-')}-like)"
-                         for s in SAMPLES.values())
+    products = "\n".join(f"  {s.code:<9} {s.product} ({s.model.replace('_', '-')}-like"
+                         f"{', thixotropic' if s.thixotropy else ''})" for s in SAMPLES.values())
     files = "\n".join(f"  {e.path}  ({len(e.runs)} run{'s' * (len(e.runs) > 1)}, {_export_kind(e)})"
                       for e in EXPORTS)
     return README_TEMPLATE.format(products=products, files=files)
@@ -840,9 +1136,9 @@ plant, its products, batches, operators and instruments do not exist; the number
 generated by gammadot from rheological models with simulated noise. Do not use them for
 any real product, process or decision.
 
-The story: the QC lab of Merrowind, a maker of personal-care products and decorative
-coatings, measures a flow curve of each production batch on two rotational rheometers
-and files the exports by month and production line.
+The story: the QC lab of Merrowind, a maker of personal-care and household products and
+decorative coatings, measures a flow curve of each production batch on two rotational
+rheometers and files the exports by month and production line.
 
 Batches:
 {products}
@@ -853,14 +1149,37 @@ Exports (any sub-folder depth is read):
 Raw exports (torque and speed) name a geometry defined in study.toml; the other exports
 hold the shear rate, stress and viscosity the instrument computed itself.
 
-Deliberate artefacts, so that the checks have something to find:
+study.toml also gives the samples' density (1020 kg/m3, for the inertia and steady-state
+checks), the rheometers' torque range, the shear rates at which viscosities are reported,
+and a few [[spec]] rules. THE SPECIFICATIONS ARE INVENTED EXAMPLES that show how rules work;
+they are nobody's acceptance limits.
+
+Deliberate artefacts, so that every check has something to find:
   - about 1.5 % noise on every torque, and extra noise near the torque resolution floor
     (about 0.08 uN.m; see the check oil at low shear rates);
   - one clear outlier (an air bubble) in LT-2611 at 20 C;
   - the styling gel slips on smooth plates (slip velocity proportional to stress); it
     was measured at 1.0 mm and, with a `gap: 0.5 mm` line in the run, at 0.5 mm, so the
-    wall-slip analysis can separate slip from flow;
+    wall-slip analysis can separate slip from flow (the replicate comparison, which does
+    not know about gaps, sees the two runs disagree);
   - the mud's dial readings are whole or half degrees, as an operator writes them;
+  - the rinse aid (3.5 mPa.s) in the cup: above about 120 1/s the inner cylinder's Reynolds
+    number passes the onset of Taylor vortices and the torque rises above the laminar one
+    (secondary_flow); the fast screening method's last steps (0.3 to 0.5 s) are shorter than
+    the time momentum needs to cross the 2 mm gap of so thin a liquid (steady_state);
+  - the check oil's monthly low-rate check starts with a zero reading at rest (speed 0:
+    invalid_point) and at 0.01 1/s, where torques lie below the rheometer's resolvable
+    minimum of 0.8 uN.m (torque_range);
+  - LT-2613 is a thin batch that fails the example lotion specification; it was measured
+    twice and the two runs agree (replicates); the second run went on to 2500 1/s, where
+    sample was thrown out of the cone gap at the rim and the stress falls over the last
+    three points (sample_loss);
+  - PG-2612, a thixotropic gel paint, was taken up and down in rate from rest: the stress
+    of the rising sweep passes a maximum as the structure breaks down (non_monotonic) and
+    the falling sweep lies far below the rising one (hysteresis_loop);
+  - HCB-2612 was repeated with the cup filled below the mark (85 % of the immersed
+    length), so the repeat reads about 15 % low and disagrees with the first run
+    (replicates);
   - one export cut short by an interrupted transfer (file name says BROKEN); it must be
     rejected while the rest of the study is processed.
 """
@@ -895,11 +1214,46 @@ def _run_truth(index: int, plan: RunPlan, export: ExportPlan) -> dict[str, Any]:
         "temperature": plan.temperature, "model": model.name, "params": dict(model.params),
         "geometry": plan.geometry, "geometry_type": geometry.kind,
         "geometry_in_file": export.raw, "export": "raw" if export.raw else "computed",
-        "n_points": plan.points, "nominal_shear_rate": (plan.rate_min, plan.rate_max),
+        "n_points": plan.n_points, "nominal_shear_rate": (plan.rate_min, plan.rate_max),
         "outlier_index": plan.outlier_index, "relative_noise": REL_NOISE,
         "torque_floor": TORQUE_FLOOR, "gap": getattr(geometry, "gap", None),
         "gap_in_file": plan.gap is not None, "slip_per_stress": SAMPLES[plan.sample].slip,
+        "density": DENSITY, "up_and_down": plan.up_and_down, "step_durations": plan.step_durations,
+        "filled_fraction": plan.filled, "loss_rate": plan.loss_rate,
+        "thixotropy_build_rate": SAMPLES[plan.sample].thixotropy,
+        "artefacts": _artefacts(plan),
     }
+
+
+def _artefacts(plan: RunPlan) -> list[str]:
+    """Names of what the run was made to show beyond noise (README.txt explains each)."""
+    found = []
+    geometry = geometry_of(plan)
+    if plan.outlier_index is not None:
+        found.append("outlier")
+    if SAMPLES[plan.sample].slip and isinstance(geometry, ParallelPlate):
+        found.append("wall_slip")
+    if SAMPLES[plan.sample].thixotropy:
+        found.append("thixotropy")
+    if plan.step_durations is not None:
+        found.append("short_steps")
+    if plan.filled != 1.0:
+        found.append("under_filled")
+    if plan.loss_rate is not None and plan.loss_rate < plan.rate_max:
+        found.append("sample_loss")
+    if plan.rest_reading:
+        found.append("rest_reading")
+    if isinstance(geometry, ConcentricCylinder):
+        model = model_at(SAMPLES[plan.sample], plan.temperature)
+        omega = geometry.speed_for(plan.rate_max)
+        if geometry.torque(model, omega, DENSITY) > geometry.torque(model, omega):
+            found.append("taylor_vortices")
+    if not isinstance(geometry, DirectIndicating):
+        model = model_at(SAMPLES[plan.sample], plan.temperature)
+        lowest = geometry.torque(model, geometry.speed_for(plan.rate_min))
+        if lowest < TORQUE_LIMITS[0]:
+            found.append("low_torque")
+    return found
 
 
 def demo_truth() -> dict[str, dict[str, Any]]:
