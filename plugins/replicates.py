@@ -3,7 +3,8 @@ whether they do.
 
 Every pair of runs with the same sample name whose temperatures differ by at most
 ``temperature_window`` (default 1 °C; viscosity changes by roughly 2–10 % per °C near room
-temperature, common practice) is compared over the shear rates both cover. Each run's flow curve
+temperature, common practice) is compared over the shear rates both cover. Parallel-plate runs
+at different gaps are not replicates: they form a wall-slip series (``wall_slip`` analysis). Each run's flow curve
 (fitted points only, its first sweep when it goes up and down) is interpolated linearly in
 log η against log γ̇ at every rate of either run inside the common range; the largest ratio
 between the two, |ln(η_a/η_b)| turned back into a percentage, is the disagreement. Above
@@ -50,6 +51,7 @@ class Curve:
     temperature: float | None
     rate: np.ndarray
     viscosity: np.ndarray
+    gap: float | None = None  # parallel-plate gap (m): runs at different gaps are a slip series
 
 
 @dataclass(frozen=True)
@@ -78,7 +80,10 @@ def curve_of(run_result: Any) -> Curve | None:
     if len(rates) < MIN_POINTS:
         return None
     log_eta = np.bincount(inverse, weights=np.log(viscosity[index])) / np.bincount(inverse)
-    return Curve(run.run_id, run.sample, run.temperature, rates, np.exp(log_eta))
+    geometry = getattr(run_result, "geometry", None)
+    gap = geometry.values.get("gap") if geometry is not None and geometry.type == "parallel_plate" else None
+    return Curve(run.run_id, run.sample, run.temperature, rates, np.exp(log_eta),
+                 None if gap is None else float(gap))
 
 
 def compare(a: Curve, b: Curve) -> Comparison | None:
@@ -98,6 +103,8 @@ def compare(a: Curve, b: Curve) -> Comparison | None:
 def _same_conditions(a: Curve, b: Curve, window: float) -> bool:
     if a.sample != b.sample:
         return False
+    if a.gap is not None and b.gap is not None and not np.isclose(a.gap, b.gap, rtol=1e-3):
+        return False  # a series of gaps measures wall slip (plugins/wall_slip.py), not repeatability
     if a.temperature is None or b.temperature is None:
         return a.temperature is None and b.temperature is None
     return abs(a.temperature - b.temperature) <= window

@@ -91,3 +91,22 @@ def test_replicates_can_be_switched_off(tmp_path: Path, registry) -> None:
     result = process_study(tmp_path, registry)
     assert "replicates" not in result.analyses
     assert not any(f.check == "replicates" for r in result.runs for f in r.findings)
+
+
+def test_plate_runs_at_different_gaps_are_a_slip_series_not_replicates(tmp_path: Path, registry) -> None:
+    # Common practice: a gap series on parallel plates measures wall slip (Yoshimura & Prud'homme,
+    # J. Rheol. 32 (1988) 53), so its curves are expected to differ and are not compared here.
+    (tmp_path / "study.toml").write_text(
+        '[geometries.p25]\ntype = "parallel_plate"\nradius = "12.5 mm"\ngap = "1 mm"\n', encoding="utf-8")
+    rates = np.geomspace(1.0, 100.0, 12)
+    for name, gap, k in (("g1.csv", "1 mm", 8.0), ("g05.csv", "0.5 mm", 8.0 * 1.3), ("g1b.csv", "1 mm", 8.0 * 1.2)):
+        omega = rates * 1e-3 / 0.0125  # any speeds: the torque below is what the plate sees
+        torque = np.pi * 0.0125 ** 3 / 2 * k * rates ** 0.45  # apparent rim stress 2M/(πR³) = Kγ̇ⁿ
+        write_export(tmp_path / name, {"sample": "SG-1", "geometry": "p25", "gap": gap, "temperature": "25 °C"},
+                     ["Speed [rad/s]", "Torque [N·m]"], [[w, m] for w, m in zip(omega, torque)])
+    result = process_study(tmp_path, registry)
+    ids = {r.run.source_file: r.run.run_id for r in result.runs}
+    pairs = {(r["run_id_a"], r["run_id_b"]) for r in result.analyses["replicates"].tables[0].rows}
+    assert pairs == {(ids["g1.csv"], ids["g1b.csv"])}  # same gap: compared (and 20 % apart: flagged)
+    assert _replicate_findings(result, ids["g05.csv"]) == []
+    assert len(_replicate_findings(result, ids["g1b.csv"])) == 1
