@@ -50,6 +50,9 @@ class FitConfig:
 
     ``space``/``weights``/``loss``/``loss_scale`` mean what they mean in
     :class:`gammadot.least_squares.Objective` (values listed there and in the README).
+    ``intervals``: ``"covariance"`` (standard errors only) or ``"profile"`` (also 95 %
+    profile-likelihood intervals of the selected model's parameters:
+    :mod:`gammadot.profile_intervals`).
     """
 
     models: tuple[str, ...] | None = None
@@ -58,6 +61,7 @@ class FitConfig:
     loss: str = "linear"
     loss_scale: float | None = None
     shear_rates: tuple[float, ...] = ()
+    intervals: str = "covariance"
 
 
 @dataclass(frozen=True)
@@ -78,9 +82,10 @@ class StudyConfig:
 
 _TOP_KEYS = ("study", "geometries", "columns", "fit", "checks", "spec", "limits")
 _STUDY_KEYS = ("title", "description", "density")
-_FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates")
+_FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates", "intervals")
 _FIT_CHOICES = {"space": ("log", "linear"), "weights": ("none", "relative", "per_decade"),
-                "loss": ("linear", "soft_l1", "huber")}  # as gammadot.least_squares.Objective
+                "loss": ("linear", "soft_l1", "huber"),  # as gammadot.least_squares.Objective
+                "intervals": ("covariance", "profile")}
 _LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque"}
 
 
@@ -227,7 +232,8 @@ def _fit(table: Mapping[str, Any], registry: "Registry", source: str) -> FitConf
             raise StudyConfigError(f"{source}: [fit] shear_rates[{i}] must be positive")
     return FitConfig(models=tuple(models) if models is not None else None, space=choices["space"],
                      weights=choices["weights"], loss=choices["loss"],
-                     loss_scale=float(loss_scale) if loss_scale is not None else None, shear_rates=shear_rates)
+                     loss_scale=float(loss_scale) if loss_scale is not None else None, shear_rates=shear_rates,
+                     intervals=choices["intervals"])
 
 
 def _checks(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, Mapping[str, Any]]:

@@ -37,7 +37,9 @@ class ParameterEstimate:
     """A fitted parameter: value and standard error in the parameter's SI unit.
 
     ``value``/``stderr`` are ``None`` when the fit failed or the data cannot determine the
-    parameter; ``note`` then says why ("" otherwise).
+    parameter; ``note`` then says why ("" otherwise). ``ci_low``/``ci_high``: the 95 %
+    profile-likelihood interval in the same unit (:mod:`gammadot.profile_intervals`), ``None``
+    unless ``[fit] intervals = "profile"`` computed it (the selected model only).
     """
 
     name: str
@@ -45,6 +47,8 @@ class ParameterEstimate:
     stderr: float | None
     unit: str
     note: str = ""
+    ci_low: float | None = None
+    ci_high: float | None = None
 
 
 @dataclass(frozen=True)

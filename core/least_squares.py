@@ -344,14 +344,23 @@ class _Local:
     message: str
     nfev: int
     transform: _Transform = field(repr=False)
+    residual: np.ndarray | None = field(default=None, repr=False)  # at theta, when the minimiser returned it
     _solution: tuple[np.ndarray, np.ndarray, np.ndarray] | None = field(default=None, repr=False)
+    _at_bound: np.ndarray | None = field(default=None, repr=False)
 
     def solution(self, problem: _Problem) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """External parameters, residual and Jacobian at the solution (computed once)."""
         if self._solution is None:
             p = np.array(self.transform.external(self.theta))
-            self._solution = (p, problem.residual(p), problem.jacobian(p))
+            r = self.residual if self.residual is not None else problem.residual(p)
+            self._solution = (p, r, problem.jacobian(p))
         return self._solution
+
+    def at_bound(self) -> np.ndarray:
+        """Which parameters sit at a bound at the solution (computed once)."""
+        if self._at_bound is None:
+            self._at_bound = self.transform.at_bound(self.theta)
+        return self._at_bound
 
 
 def _minimise(problem: _Problem, transform: _Transform, objective: Objective, settings: _Settings,
@@ -359,26 +368,50 @@ def _minimise(problem: _Problem, transform: _Transform, objective: Objective, se
     """One local fit from the transform's start; cost in the objective's own terms."""
     from scipy.optimize import least_squares, leastsq
 
+    # The last parameters, residual and Jacobian by θ: scipy checks the residual and Jacobian at
+    # the start, where MINPACK then asks for them again, and MINPACK asks for the Jacobian where
+    # it evaluated the residual (it passes a copy of θ each call, so the bytes are the key).
+    last_p: list = [None, None]
+    last_r: list = [None, None]
+    last_J: list = [None, None]
+
+    def external(theta: np.ndarray) -> tuple[bytes, list[float]]:
+        key = theta.tobytes()
+        if key != last_p[0]:
+            last_p[0], last_p[1] = key, transform.external(theta)
+        return key, last_p[1]
+
     def fun(theta: np.ndarray) -> np.ndarray:
-        return problem.residual(transform.external(theta))
+        key, p = external(theta)
+        if key != last_r[0]:
+            last_r[0], last_r[1] = key, problem.residual(p)
+        return last_r[1]
 
     jac: Callable[[np.ndarray], np.ndarray] | None = None
     if problem.jacobian_function is not None:
         def jac(theta: np.ndarray) -> np.ndarray:
-            J = problem.jacobian(transform.external(theta))
-            if not transform.all_varied:
-                J = J[:, transform.varied]
-            J *= transform.gradient(theta)
-            return J
+            key, p = external(theta)
+            if key != last_J[0]:
+                J = problem.jacobian(p)
+                if not transform.all_varied:
+                    J = J[:, transform.varied]
+                J *= transform.gradient(theta)
+                last_J[0], last_J[1] = key, J
+            return last_J[1].copy()  # callers may scale it in place: the cache stays intact
 
     if objective.loss == "linear":
         theta, _, info, message, ier = leastsq(fun, transform.start, Dfun=jac, full_output=True,
                                                ftol=settings.tolerance, xtol=settings.tolerance,
                                                maxfev=settings.max_evaluations or 0)
-        r = fun(theta)
-        return _Local(np.asarray(theta, float), float(r @ r), ier in (1, 2, 3, 4), str(message).strip(),
-                      int(info["nfev"]), transform)
-    result = least_squares(fun, transform.start, jac=jac if jac is not None else "2-point", method="trf",
+        theta = np.asarray(theta, float)
+        r = np.asarray(info["fvec"], float)  # MINPACK's residual at θ: no re-evaluation
+        return _Local(theta, float(r @ r), ier in (1, 2, 3, 4), str(message).strip(),
+                      int(info["nfev"]), transform, residual=r)
+
+    def fun_copy(theta: np.ndarray) -> np.ndarray:  # the robust loss scales residuals in place
+        return fun(theta).copy()
+
+    result = least_squares(fun_copy, transform.start, jac=jac if jac is not None else "2-point", method="trf",
                            loss=objective.loss, f_scale=loss_scale, x_scale="jac",
                            ftol=settings.tolerance, xtol=settings.tolerance, max_nfev=settings.max_evaluations)
     return _Local(np.asarray(result.x, float), float(2.0 * result.cost), bool(result.success),
@@ -442,7 +475,7 @@ def _fit_curve(model: Model, x: np.ndarray, y: np.ndarray, starts: Mapping[str, 
 def _pulls_off_bound(problem: _Problem, local: _Local) -> bool:
     """True when a parameter stopped at a bound although the cost falls towards the inside
     (first-order optimality, KKT, violated): the projection stuck there on the way."""
-    at_bound = local.transform.at_bound(local.theta)
+    at_bound = local.at_bound()
     if not at_bound.any():
         return False
     p, r, J = local.solution(problem)
@@ -468,20 +501,25 @@ def _summarise(model: Model, problem: _Problem, local: _Local, start_index: int,
     if objective.loss != "linear" and loss_scale is not None:
         rho = _robust_weights(objective.loss, r, loss_scale)
         r, J = r * np.sqrt(rho), J * np.sqrt(rho)[:, None]
-    at_bound = local.transform.at_bound(local.theta)
+    at_bound = local.at_bound()
     k = len(p)
     free = ~at_bound & ~local.transform.held()
+    all_free = bool(free.all())
     rss = float(r @ r)
     dof = len(r) - int(free.sum())
     covariance = np.full((k, k), np.nan)
     unresolved = [False] * k
-    if dof > 0 and free.any() and np.all(np.isfinite(J)):
-        sub, lost = _inverse_normal_matrix(J[:, free])
-        covariance[np.ix_(free, free)] = sub * (rss / dof)
-        for j_sub, j in enumerate(np.flatnonzero(free)):
-            if lost[j_sub]:
-                unresolved[j] = True
-                covariance[j, :] = covariance[:, j] = np.nan
+    if dof > 0 and free.any() and np.isfinite(J).all():
+        sub, lost = _inverse_normal_matrix(J if all_free else J[:, free])
+        if all_free:
+            covariance = sub * (rss / dof)
+        else:
+            covariance[np.ix_(free, free)] = sub * (rss / dof)
+        if lost.any():
+            for j_sub, j in enumerate(np.flatnonzero(free)):
+                if lost[j_sub]:
+                    unresolved[j] = True
+                    covariance[j, :] = covariance[:, j] = np.nan
     stderr = np.sqrt(np.diag(covariance))
     return CurveFit(tuple(problem.names), p, stderr, covariance, r, rss, len(r), tuple(bool(b) for b in at_bound),
                     tuple(unresolved), local.success, local.message, local.nfev, start_index,

@@ -17,6 +17,7 @@ from .derived_results import derived_results
 from .fitting import FitResult, PreparedFit, failed_fit, prepare_fit, profiled, summarise
 from .least_squares import Objective
 from .model_selection import select_model
+from .profile_intervals import with_profile_intervals
 from .records import CheckContext, Conversion, Finding, Result
 from .registry import Provided, Registry
 
@@ -169,7 +170,13 @@ def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Regis
     fits = [p if isinstance(p, FitResult) else
             _guarded(registry.models[model_id], n_points, lambda p=p, full=i in near_best: summarise(p, full))
             for i, (model_id, p) in enumerate(zip(model_ids, prepared))]
-    return select_model(fits, {m: len(registry.models[m].record.parameters) for m in model_ids})
+    fits = select_model(fits, {m: len(registry.models[m].record.parameters) for m in model_ids})
+    if config.fit.intervals == "profile":  # the selected model only: 10–40 refits per parameter
+        for i, (fit, p) in enumerate(zip(fits, prepared)):
+            if fit.selected and isinstance(p, PreparedFit):
+                fits[i] = _guarded(registry.models[fit.model], n_points,
+                                   lambda f=fit, p=p: with_profile_intervals(f, p))  # type: ignore[assignment]
+    return fits
 
 
 def _guarded(provided: Provided, n_points: int, call: Callable[[], PreparedFit | FitResult]) -> PreparedFit | FitResult:

@@ -146,7 +146,9 @@ def fits_table(result: "StudyResult") -> pa.Table:
 
 def parameters_table(result: "StudyResult") -> pa.Table:
     """parameters.parquet: one row per run, model and parameter (value and standard error;
-    both null when the parameter is not identified, ``note`` saying why)."""
+    both null when the parameter is not identified, ``note`` saying why; ``ci_low``/``ci_high``
+    the 95 % profile-likelihood interval in the parameter's unit, null unless
+    ``[fit] intervals = "profile"`` computed it)."""
     rows = [(r.run.run_id, f.model, p) for r in result.runs for f in r.fits for p in f.parameters]
     return _table({
         "run_id": ([rid for rid, _, _ in rows], pa.string(), None),
@@ -156,6 +158,8 @@ def parameters_table(result: "StudyResult") -> pa.Table:
         "stderr": ([p.stderr for _, _, p in rows], pa.float64(), None),
         "unit": ([p.unit for _, _, p in rows], pa.string(), None),
         "note": ([p.note or None for _, _, p in rows], pa.string(), None),
+        "ci_low": ([p.ci_low for _, _, p in rows], pa.float64(), None),
+        "ci_high": ([p.ci_high for _, _, p in rows], pa.float64(), None),
     })
 
 
