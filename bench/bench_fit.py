@@ -21,7 +21,9 @@ gammadot / bare loop (carreau_yasuda; herschel_bulkley; 200-run fit stage):
 - after (MINPACK's own residual at the solution, no repeated evaluation of the residual,
   Jacobian or parameter transform at the same point, bound flags and covariance computed
   once): 1.46, 1.46, 1.30; 1.46, 1.55, 1.58; 1.03, 1.48, 1.05 — the last two runs shared the
-  cores with a full test run. The figures scatter by about ±0.1 between runs on a loaded machine.
+  cores with a full test run; three more runs after it: 1.57, 1.23, 1.28; 1.04, 1.75, 1.55;
+  0.85, 1.40, 1.26. On this shared machine a single run scatters by ±0.3: compare medians
+  (after, six runs: carreau_yasuda ≈ 1.38, herschel_bulkley ≈ 1.55).
 """
 
 from __future__ import annotations
