@@ -147,13 +147,23 @@ def sample_verdicts(result: "StudyResult") -> dict[str, dict[str, int]]:
     return summary
 
 
+def sample_word(counts: dict[str, int]) -> str:
+    """FAIL if any rule failed, else INCOMPLETE (a rule without value), else UNCERTAIN (a value
+    within its uncertainty of a limit), else PASS."""
+    if counts["fail"]:
+        return "FAIL"
+    if counts["n/a"]:
+        return "INCOMPLETE"
+    return "UNCERTAIN" if counts["uncertain"] else "PASS"
+
+
 def _report_specs(result: "StudyResult") -> None:
     summary = sample_verdicts(result)
     if not summary:
         return
     click.echo("specifications by sample (details in tables/specs.parquet and on the report):")
     for sample, c in summary.items():
-        word = "FAIL" if c["fail"] else ("INCOMPLETE" if c["n/a"] else "PASS")
+        word = sample_word(c)
         near = f"; {c['uncertain']} within the uncertainty of a limit" if c["uncertain"] else ""
         click.echo(f"  {sample}: {word} ({c['pass']} pass, {c['fail']} fail, {c['n/a']} n/a{near})")
     click.echo("  verdicts support, and do not replace, review by a qualified person under local procedures")

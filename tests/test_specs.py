@@ -133,3 +133,21 @@ def test_bad_spec_names_entry_and_key(tmp_path: Path, registry, spec: str, messa
     with pytest.raises(StudyConfigError, match="#1") as info:
         load_study_config(tmp_path, registry)
     assert message in str(info.value)
+
+
+def test_sample_summary_word_marks_uncertain_values() -> None:
+    from types import SimpleNamespace
+
+    from gammadot.cli import sample_verdicts, sample_word
+    from gammadot.specs import SpecVerdict
+
+    def verdict(run_id: str, word: str, near: bool) -> SpecVerdict:
+        return SpecVerdict(run_id, "r", 1.0, 0.1, "1", 0.0, 2.0, word, near, "model", "")
+
+    runs = [SimpleNamespace(run=SimpleNamespace(run_id=i, sample=s)) for i, s in (("a", "S1"), ("b", "S2"))]
+    result = SimpleNamespace(runs=runs, specs=[verdict("a", "pass", True), verdict("b", "pass", False)])
+    summary = sample_verdicts(result)
+    assert summary["S1"] == {"pass": 1, "fail": 0, "n/a": 0, "uncertain": 1}
+    assert sample_word(summary["S1"]) == "UNCERTAIN" and sample_word(summary["S2"]) == "PASS"
+    assert sample_word({"pass": 3, "fail": 1, "n/a": 1, "uncertain": 1}) == "FAIL"
+    assert sample_word({"pass": 3, "fail": 0, "n/a": 1, "uncertain": 1}) == "INCOMPLETE"
