@@ -56,44 +56,69 @@ def _model_viscosity(fit: FitResult | None, model: Model | None, rate: float) ->
     method = f"selected model {fit.model}; standard error from the parameter covariance"
     outside = _outside(fit, rate)
     note = _range_note(fit) if outside else ""
-    x = np.array([rate])
-    values = np.array([fit.best_fit[p.name] for p in model.parameters])
+    eta, stderr = model_viscosity(fit, model, np.array([rate]))
+    value, error = float(eta[0]), float(stderr[0])
+    return Result(VISCOSITY, value if math.isfinite(value) else None, "Pa·s",
+                  error if math.isfinite(error) else None, method, rate, outside, note)
+
+
+def model_viscosity(fit: FitResult, model: Model, shear_rate: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """A fitted model's viscosity (Pa·s) at each shear rate (1/s) and its standard error.
+
+    The standard error is propagated from the parameter covariance to first order (the
+    "delta method": var η = gᵀCg with g = ∂η/∂p; JCGM 100:2008 (GUM) §5.1.2), parameters at a
+    bound held fixed. NaN where the value or its uncertainty is unknown (a parameter without a
+    standard error that the value depends on). Uses every parameter's least-squares value
+    (``fit.best_fit``); nothing here says whether a rate lies inside the fitted range.
+    """
+    x = np.atleast_1d(np.asarray(shear_rate, dtype=float))
+    names = [p.name for p in model.parameters]
+    values = np.array([fit.best_fit[name] for name in names])
     with np.errstate(all="ignore"):
-        target = float(np.asarray(model.function(x, **fit.best_fit), float)[0])
-        scale = 1.0 / rate if model.target == "shear_stress" else 1.0  # η = τ/γ̇ for stress models
+        target = np.broadcast_to(np.asarray(model.function(x, **fit.best_fit), float), x.shape)
+        scale = 1.0 / x if model.target == "shear_stress" else np.ones_like(x)  # η = τ/γ̇ for stress models
         eta = target * scale
-        gradient = _gradient(model, x, fit.best_fit, values) * scale
-    return Result(VISCOSITY, eta if math.isfinite(eta) else None, "Pa·s",
-                  _propagated_stderr(fit, [p.name for p in model.parameters], gradient),
-                  method, rate, outside, note)
+        gradient = _gradient(model, x, fit.best_fit, values) * scale[:, None]
+    eta = np.where(np.isfinite(eta), eta, np.nan)
+    return eta, _propagated_stderr(fit, names, gradient)
 
 
 def _gradient(model: Model, x: np.ndarray, params: dict[str, float], values: np.ndarray) -> np.ndarray:
-    """∂f/∂p at one rate: the model's Jacobian, or central differences (relative step 10⁻⁶)."""
+    """∂f/∂p at each rate, shape (rates, parameters): the model's Jacobian, or central
+    differences (relative step 10⁻⁶)."""
     names = [p.name for p in model.parameters]
     if model.jacobian is not None:
         parts = model.jacobian(x, **params)
-        return np.array([float(np.broadcast_to(parts[n], x.shape)[0]) for n in names])
-    gradient = np.empty(len(names))
+        return np.stack([np.broadcast_to(np.asarray(parts[n], float), x.shape) for n in names], axis=1)
+    gradient = np.empty((len(x), len(names)))
     for j, name in enumerate(names):
         step = 1e-6 * (abs(values[j]) or 1.0)
         up, down = dict(params), dict(params)
         up[name], down[name] = values[j] + step, values[j] - step
-        gradient[j] = float((model.function(x, **up)[0] - model.function(x, **down)[0]) / (2 * step))
+        gradient[:, j] = (np.asarray(model.function(x, **up), float) - np.asarray(model.function(x, **down), float)) \
+            / (2 * step)
     return gradient
 
 
-def _propagated_stderr(fit: FitResult, names: list[str], gradient: np.ndarray) -> float | None:
-    """√(gᵀCg); parameters at a bound are held fixed; a parameter without a standard error
-    that the value depends on makes the uncertainty unknown (``None``)."""
-    if fit.covariance is None or not np.all(np.isfinite(gradient)):
-        return None
-    matters = (gradient != 0) & np.array([n not in fit.fixed for n in names])
-    cov = np.asarray(fit.covariance, dtype=float)[np.ix_(matters, matters)]
-    if not np.all(np.isfinite(cov)):
-        return None
-    variance = float(gradient[matters] @ cov @ gradient[matters])
-    return math.sqrt(variance) if variance >= 0 else None
+def _propagated_stderr(fit: FitResult, names: list[str], gradient: np.ndarray) -> np.ndarray:
+    """√(gᵀCg) for each row of ``gradient``; parameters at a bound are held fixed. NaN where a
+    gradient is not finite, or where the value depends on a parameter without a (finite)
+    covariance entry."""
+    rows = gradient.shape[0]
+    if fit.covariance is None:
+        return np.full(rows, np.nan)
+    cov = np.asarray(fit.covariance, dtype=float)
+    finite_rows = np.all(np.isfinite(gradient), axis=1)
+    free = np.array([n not in fit.fixed for n in names], dtype=float)
+    g = np.where(np.isfinite(gradient), gradient, 0.0) * free
+    matters = (g != 0).astype(float)
+    unknown = ~np.isfinite(cov)
+    broken = np.einsum("ia,ab,ib->i", matters, unknown.astype(float), matters) > 0
+    variance = np.einsum("ia,ab,ib->i", g, np.where(unknown, 0.0, cov), g)
+    with np.errstate(invalid="ignore"):
+        stderr = np.sqrt(np.where(variance >= 0, variance, np.nan))
+    stderr[~finite_rows | broken] = np.nan
+    return stderr
 
 
 def _interpolated_viscosity(shear_rate: np.ndarray, viscosity: np.ndarray, rate: float,

@@ -30,4 +30,5 @@ BUILTIN_PLUGINS: tuple[tuple[str, str], ...] = (
     ("parquet_tables", "gammadot.plugins.parquet_tables"),
     ("rejected_list", "gammadot.plugins.rejected_list"),
     ("study_site", "gammadot.plugins.study_site"),
+    ("field_results_section", "gammadot.plugins.field_results_section"),
 )
