@@ -21,8 +21,8 @@ How:
   on the way, the fit is repeated with lmfit's own Minuit-style transform
   (``lmfit.Parameter.setup_bounds``/``from_internal``/``scale_gradient``; lmfit docs, "Bounds
   Implementation"), which can leave a bound again.
-- Minimiser: Levenberg–Marquardt, MINPACK ``lmder``/``lmdif`` (Moré, Lecture Notes in
-  Mathematics 630 (1978) 105, doi:10.1007/BFb0067700) through ``scipy.optimize.leastsq`` — the
+- Minimiser: Levenberg–Marquardt, MINPACK ``lmder``/``lmdif`` (Moré, in Numerical
+  Analysis, Springer LNM 630 (1978) 105, doi:10.1007/BFb0067700) through ``scipy.optimize.leastsq`` — the
   routine lmfit's default ``leastsq`` method runs — with the model's analytic Jacobian when it
   has one. A robust loss (``soft_l1``, ``huber``) goes through ``scipy.optimize.least_squares``
   (trust-region reflective), the routine behind lmfit's ``least_squares`` method.
