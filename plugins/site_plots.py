@@ -65,8 +65,9 @@ def axis(title: str, kind: str = "log") -> dict[str, Any]:
 
 def layout(x_title: str, y_title: str, *, legend_below: bool = False, y_kind: str = "log",
            x_kind: str = "log", showlegend: bool = True) -> dict[str, Any]:
-    # "normal" order: Plotly reverses the legend of figures with filled areas otherwise
-    legend: dict[str, Any] = {"groupclick": "toggleitem", "bgcolor": "rgba(255,255,255,0.85)", "traceorder": "normal"}
+    # "grouped" keeps the group titles (samples) and the order of the traces; Plotly would
+    # otherwise reverse the legend of a figure with filled areas (the band)
+    legend: dict[str, Any] = {"groupclick": "toggleitem", "bgcolor": "rgba(255,255,255,0.85)", "traceorder": "grouped"}
     if legend_below:
         legend.update({"orientation": "h", "x": 0, "xanchor": "left", "y": -0.22, "yanchor": "top"})
     return {
@@ -426,7 +427,24 @@ def residual_figure(rr: Any, registry: Any) -> dict[str, Any] | None:
     spec = layout("Shear rate γ̇ (1/s)", "Residual (measured − model)/model (%)", y_kind="linear")
     spec["yaxis"]["zeroline"] = True
     spec["yaxis"]["zerolinecolor"] = "#5b6670"
-    return {"data": traces, "layout": spec}
+    figure = {"data": traces, "layout": spec, "outside": 0}
+    # the scale follows the points used in the fit: an excluded point far off (a plug in the gap,
+    # a point at rest) would flatten them into a line; a double click on the plot shows everything
+    selected = [t for t in traces if t["meta"]["kind"] == "points"]
+    used = np.concatenate([t["y"] for t in selected if t["meta"]["style"] == "included"] or [np.empty(0)])
+    used = used[np.isfinite(used)]
+    if len(used):
+        low, high = float(used.min()), float(used.max())
+        pad = max(0.15 * (high - low), 0.05 * max(abs(low), abs(high)), 0.1)
+        low, high = min(low - pad, -pad), max(high + pad, pad)
+        others = np.concatenate([t["y"] for t in selected if t["meta"]["style"] == "excluded"] or [np.empty(0)])
+        others = others[np.isfinite(others)]
+        outside = int(np.count_nonzero((others < low) | (others > high)))
+        if outside:
+            spec["yaxis"]["range"] = [low, high]
+            spec["yaxis"]["autorange"] = False
+            figure["outside"] = outside
+    return figure
 
 
 # --------------------------------------------------------------------------- a sample's runs

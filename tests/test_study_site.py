@@ -651,3 +651,20 @@ def test_a_large_overlay_draws_lines_and_keeps_every_excluded_point(built) -> No
     assert all(t["marker"]["symbol"] == "circle-open" for t in companions)
     small = site_plots.flow_curve_overlay(runs)
     assert not small["dense"] and len(small["data"]) == len(runs)  # one trace per run
+
+
+def test_residual_scale_follows_the_points_used_in_the_fit(built) -> None:
+    result, out = built
+    mud = by_sample(result, MUD)
+    page = _run_page(out, mud.run.run_id)
+    figure = _figure(page, "plot-residuals")
+    selected = [t for t in figure["data"] if t["meta"]["kind"] == "points"]
+    used = [y for t in selected if t["meta"]["style"] == "included" for y in t["y"]]
+    excluded = [y for t in selected if t["meta"]["style"] == "excluded" for y in t["y"] if y is not None]
+    low, high = figure["layout"]["yaxis"]["range"]
+    assert low < min(used) and max(used) < high  # every fitted point in view
+    outside = sum(1 for y in excluded if not low <= y <= high)
+    assert outside == figure["outside"] >= 1  # the partly sheared points lie far off
+    assert f"{outside} excluded" in page.read_text(encoding="utf-8")
+    fluid = _figure(_run_page(out, by_sample(result, EVIL).run.run_id), "plot-residuals")
+    assert "range" not in fluid["layout"]["yaxis"] and fluid["outside"] == 0  # nothing excluded: autorange

@@ -34,13 +34,19 @@
       target.textContent = "The plot data could not be read.";
       return null;
     }
-    if (target.clientWidth < 600 && spec.layout && spec.layout.legend) {
-      /* narrow screens: legend below the plot, so the plot keeps its width */
-      spec.layout.legend.orientation = "h";
-      spec.layout.legend.x = 0;
-      spec.layout.legend.xanchor = "left";
-      spec.layout.legend.y = -0.25;
-      spec.layout.legend.yanchor = "top";
+    var width = target.clientWidth;
+    if (spec.layout && spec.layout.legend && width < 900) {
+      if (width < 520) {
+        /* phones: legend below the plot, so the plot keeps the width; a taller box for both */
+        spec.layout.legend.orientation = "h";
+        spec.layout.legend.x = 0;
+        spec.layout.legend.xanchor = "left";
+        spec.layout.legend.y = -0.25;
+        spec.layout.legend.yanchor = "top";
+        target.style.height = "38rem";
+      } else {
+        spec.layout.legend.font = { size: 11 };  /* tablets: the legend stays beside the plot */
+      }
     }
     var plot = plots[id] = { el: target, spec: spec, view: 0, runs: null, shown: null };
     if (spec.views) {
