@@ -668,3 +668,15 @@ def test_residual_scale_follows_the_points_used_in_the_fit(built) -> None:
     assert f"{outside} excluded" in page.read_text(encoding="utf-8")
     fluid = _figure(_run_page(out, by_sample(result, EVIL).run.run_id), "plot-residuals")
     assert "range" not in fluid["layout"]["yaxis"] and fluid["outside"] == 0  # nothing excluded: autorange
+
+
+def test_profile_intervals_are_shown_when_the_fit_has_them(built) -> None:
+    result, _ = built
+    rr = by_sample(result, EVIL)
+    fit = rr.selected
+    with_interval = replace(fit, parameters=tuple(replace(p, ci_low=p.value * 0.9, ci_high=p.value * 1.1)
+                                                  for p in fit.parameters))
+    views = site_pages.parameters_view(with_interval, result.registry)
+    for view, p in zip(views, fit.parameters):
+        assert view["interval"] == f"{study_site.fmt(p.value * 0.9)} to {study_site.fmt(p.value * 1.1)}"
+    assert all(v["interval"] == "" for v in site_pages.parameters_view(fit, result.registry))
