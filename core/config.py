@@ -53,6 +53,9 @@ class FitConfig:
     ``intervals``: ``"covariance"`` (standard errors only) or ``"profile"`` (also 95 %
     profile-likelihood intervals of the selected model's parameters:
     :mod:`gammadot.profile_intervals`).
+    ``sweeps``: which sweeps of a run that goes up and down in rate (a hysteresis loop) are
+    fitted: ``"all"`` (every point), ``"rising"`` or ``"falling"`` (only the points of the
+    rising- or falling-rate sweeps; runs measured in one direction are fitted whole).
     """
 
     models: tuple[str, ...] | None = None
@@ -62,6 +65,7 @@ class FitConfig:
     loss_scale: float | None = None
     shear_rates: tuple[float, ...] = ()
     intervals: str = "covariance"
+    sweeps: str = "all"
 
 
 @dataclass(frozen=True)
@@ -82,11 +86,11 @@ class StudyConfig:
 
 _TOP_KEYS = ("study", "geometries", "columns", "fit", "checks", "spec", "limits")
 _STUDY_KEYS = ("title", "description", "density")
-_FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates", "intervals")
+_FIT_KEYS = ("models", "space", "weights", "loss", "loss_scale", "shear_rates", "intervals", "sweeps")
 _FIT_CHOICES = {"space": ("log", "linear"), "weights": ("none", "relative", "per_decade"),
                 "loss": ("linear", "soft_l1", "huber"),  # as gammadot.least_squares.Objective
-                "intervals": ("covariance", "profile")}
-_LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque"}
+                "intervals": ("covariance", "profile"), "sweeps": ("all", "rising", "falling")}
+_LIMIT_KEYS = {"torque_min": "torque", "torque_max": "torque", "stress_min": "pressure", "stress_max": "pressure"}
 
 
 def load_study_config(study_dir: Path, registry: "Registry") -> StudyConfig:
@@ -233,7 +237,7 @@ def _fit(table: Mapping[str, Any], registry: "Registry", source: str) -> FitConf
     return FitConfig(models=tuple(models) if models is not None else None, space=choices["space"],
                      weights=choices["weights"], loss=choices["loss"],
                      loss_scale=float(loss_scale) if loss_scale is not None else None, shear_rates=shear_rates,
-                     intervals=choices["intervals"])
+                     intervals=choices["intervals"], sweeps=choices["sweeps"])
 
 
 def _checks(table: Mapping[str, Any], registry: "Registry", source: str) -> dict[str, Mapping[str, Any]]:
