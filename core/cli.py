@@ -157,14 +157,38 @@ def sample_word(counts: dict[str, int]) -> str:
     return "UNCERTAIN" if counts["uncertain"] else "PASS"
 
 
+def _temperature_conditions(result: "StudyResult") -> dict[str, tuple[int, list[str]]]:
+    """Per sample: how many verdicts are n/a for an unknown run temperature, and the rules with a
+    temperature condition that judged its runs, with the condition (``eta10 at 25 °C ± 1 K``)."""
+    from .specs import NOT_APPLIED_TEMPERATURE_UNKNOWN
+
+    sample_of = {r.run.run_id: r.run.sample or r.run.run_id for r in result.runs}
+    found: dict[str, tuple[int, list[str]]] = {}
+    for v in result.specs:
+        if not v.condition:
+            continue
+        unknown, bound = found.setdefault(sample_of[v.run_id], (0, []))
+        text = v.rule if v.rule.endswith(v.condition) else f"{v.rule} {v.condition}"
+        if text not in bound:
+            bound.append(text)
+        found[sample_of[v.run_id]] = (unknown + (v.method == NOT_APPLIED_TEMPERATURE_UNKNOWN), bound)
+    return found
+
+
 def _report_specs(result: "StudyResult") -> None:
     summary = sample_verdicts(result)
     if not summary:
         return
     click.echo("specifications by sample (details in tables/specs.parquet and on the report):")
+    conditions = _temperature_conditions(result)
     for sample, c in summary.items():
         word = sample_word(c)
         near = f"; {c['uncertain']} within the uncertainty of a limit" if c["uncertain"] else ""
+        unknown, bound = conditions.get(sample, (0, []))
+        if unknown:
+            near += f"; {unknown} n/a because the run temperature is unknown"
+        if bound:
+            near += "; temperature-bound rules: " + ", ".join(bound)
         click.echo(f"  {sample}: {word} ({c['pass']} pass, {c['fail']} fail, {c['n/a']} n/a{near})")
     click.echo("  verdicts support, and do not replace, review by a qualified person under local procedures")
 

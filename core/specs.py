@@ -5,6 +5,16 @@ computed for the run: the derived results (:mod:`gammadot.derived_results`: visc
 shear rate from the selected model or by interpolation, zero-shear viscosity, yield stress,
 flow index) and the fitted parameters. Nothing is recomputed here.
 
+A rule may be bound to a temperature (``temperature``, ``temperature_tolerance``): viscosity
+specifications are stated at a temperature because a liquid's viscosity changes by several
+per cent per kelvin (common practice). Such a rule judges only runs whose recorded temperature
+(:attr:`gammadot.datamodel.Run.temperature`, °C: the ``temperature:`` line, else the mean of the
+temperature column) lies within the tolerance; runs of the sample at other temperatures are not
+subject to it and get no row; a run of the sample without a recorded temperature gets ``n/a``
+saying so. The default tolerance, 1 K, is a common-practice choice (the developers'
+recollection, not a value from a standard): state your method's own with
+``temperature_tolerance``.
+
 Verdicts are ``pass``, ``fail`` or ``n/a`` (no value, or a model value extrapolated beyond the
 measured shear-rate range). A value whose expanded uncertainty (k = 2, about 95 % coverage;
 JCGM 100:2008 (GUM) §6.2–6.3) reaches across a limit keeps its verdict but is marked
@@ -15,7 +25,7 @@ from __future__ import annotations
 
 import fnmatch
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING, Any, Mapping, Sequence
 
 from .records import Result
@@ -29,7 +39,14 @@ COVERAGE_FACTOR = 2.0
 QUANTITIES = ("viscosity", "viscosity_ratio", "yield_stress", "zero_shear_viscosity", "flow_index", "parameter")
 METHODS = ("model", "interpolation")
 SPEC_KEYS = ("name", "quantity", "shear_rate", "shear_rate_2", "method", "model", "parameter", "sample",
-             "min", "max")
+             "min", "max", "temperature", "temperature_tolerance")
+# K: the tolerance of a rule with a temperature when it states none (common practice; see the
+# module docstring).
+DEFAULT_TEMPERATURE_TOLERANCE = 1.0
+# The ``method`` of the n/a row a rule with a temperature gives a run without one.
+NOT_APPLIED_TEMPERATURE_UNKNOWN = "not applied: run temperature unknown"
+# K: slack for the rounding of unit conversions (77 °F → 24.999999999999 °C).
+_TEMPERATURE_SLACK = 1e-6
 # Dimension (gammadot.units) and unit label of each quantity's limits.
 _LIMIT_DIMENSION = {"viscosity": ("viscosity", "Pa·s"), "zero_shear_viscosity": ("viscosity", "Pa·s"),
                     "yield_stress": ("pressure", "Pa"), "flow_index": ("dimensionless", "1"),
@@ -58,10 +75,42 @@ class SpecRule:
     model: str | None = None
     parameter: str | None = None
     sample: str | None = None
+    temperature: float | None = None
+    temperature_tolerance: float | None = None
 
     def applies_to(self, sample: str | None) -> bool:
         """Whether the rule covers a run of ``sample`` (``sample`` is a glob, e.g. ``"LT-*"``)."""
         return self.sample is None or (sample is not None and fnmatch.fnmatchcase(sample, self.sample))
+
+    def covers_temperature(self, temperature: float | None) -> bool | None:
+        """Whether a run at ``temperature`` (°C) is subject to the rule: always for a rule without
+        a temperature; ``None`` (cannot tell) when the rule has one and the run has none."""
+        if self.temperature is None:
+            return True
+        if temperature is None or not math.isfinite(temperature):
+            return None
+        tolerance = DEFAULT_TEMPERATURE_TOLERANCE if self.temperature_tolerance is None else self.temperature_tolerance
+        return abs(temperature - self.temperature) <= tolerance + _TEMPERATURE_SLACK
+
+    @property
+    def condition(self) -> str:
+        """The temperature condition in words (``"at 25 °C ± 1 K"``); empty without one."""
+        return temperature_condition(self.temperature, self.temperature_tolerance)
+
+
+def temperature_condition(temperature: float | None, tolerance: float | None) -> str:
+    """``"at 25 °C ± 1 K"`` for a rule's temperature (°C) and tolerance (K; ``None``: the
+    default); empty when there is no temperature."""
+    if temperature is None:
+        return ""
+    tolerance = DEFAULT_TEMPERATURE_TOLERANCE if tolerance is None else tolerance
+    return f"at {_number(temperature)} °C ± {_number(tolerance)} K"
+
+
+def _number(value: float) -> str:
+    """Four significant digits, no trailing zeros (conversions from °F or K leave 24.9999…)."""
+    text = f"{value:.4g}"
+    return "0" if text == "-0" else text
 
 
 @dataclass(frozen=True)
@@ -79,6 +128,13 @@ class SpecVerdict:
     straddles_limit: bool
     method: str
     message: str
+    temperature: float | None = None
+    temperature_tolerance: float | None = None
+
+    @property
+    def condition(self) -> str:
+        """The rule's temperature condition in words (``"at 25 °C ± 1 K"``); empty without one."""
+        return temperature_condition(self.temperature, self.temperature_tolerance)
 
 
 # --------------------------------------------------------------------------- parsing
@@ -111,11 +167,61 @@ def _parse_rule(entry: Mapping[str, Any], index: int, registry: "Registry") -> S
     limits = {key: _limit(entry, key, dimension, where) for key in ("min", "max")}
     if limits["min"] is not None and limits["max"] is not None and limits["min"] > limits["max"]:
         raise SpecError(f"{where} min is larger than max")
-    return SpecRule(name=str(entry.get("name") or _default_name(entry)), quantity=quantity,
+    temperature, tolerance = _temperature(entry, where)
+    name = entry.get("name") or _default_name(entry)
+    if not entry.get("name") and temperature is not None:
+        name = f"{name} {temperature_condition(temperature, tolerance)}"
+    return SpecRule(name=str(name), quantity=quantity,
                     minimum=limits["min"], maximum=limits["max"], unit=unit,
                     shear_rate=rates["shear_rate"], shear_rate_2=rates["shear_rate_2"], method=method,
                     model=entry.get("model"), parameter=entry.get("parameter"),
-                    sample=None if entry.get("sample") is None else str(entry["sample"]))
+                    sample=None if entry.get("sample") is None else str(entry["sample"]),
+                    temperature=temperature, temperature_tolerance=tolerance)
+
+
+def _temperature(entry: Mapping[str, Any], where: str) -> tuple[float | None, float | None]:
+    """(temperature °C, tolerance K) of a rule; (None, None) without ``temperature``."""
+    if "temperature" not in entry:
+        if "temperature_tolerance" in entry:
+            raise SpecError(f"{where} temperature_tolerance needs 'temperature' (the temperature it is a "
+                            "tolerance of)")
+        return None, None
+    raw = entry["temperature"]
+    if isinstance(raw, bool) or not isinstance(raw, (str, int, float)):
+        raise SpecError(f"{where} temperature must be a temperature with a unit, e.g. \"25 degC\"")
+    if _is_bare_number(raw):
+        # 25 could be °C or K: a bare number is refused rather than guessed.
+        raise SpecError(f"{where} temperature: '{raw}' has no unit; write it with one, e.g. \"{raw} degC\" "
+                        "(°C, K and °F give different temperatures)")
+    try:
+        temperature = parse_quantity(str(raw), "temperature")
+    except UnitError as exc:
+        raise SpecError(f"{where} temperature: {exc}") from None
+    if temperature < -273.15:
+        raise SpecError(f"{where} temperature: '{raw}' is below absolute zero")
+    tolerance = DEFAULT_TEMPERATURE_TOLERANCE
+    if "temperature_tolerance" in entry:
+        raw_tol = entry["temperature_tolerance"]
+        if isinstance(raw_tol, bool) or not isinstance(raw_tol, (str, int, float)):
+            raise SpecError(f"{where} temperature_tolerance must be a temperature difference, e.g. \"0.5 K\"")
+        try:
+            tolerance = parse_quantity(str(raw_tol), "temperature_difference")
+        except UnitError as exc:
+            raise SpecError(f"{where} temperature_tolerance: {exc}") from None
+        if not tolerance > 0:
+            raise SpecError(f"{where} temperature_tolerance must be a positive temperature difference "
+                            f"(got '{raw_tol}')")
+    return temperature, tolerance
+
+
+def _is_bare_number(raw: str | int | float) -> bool:
+    if isinstance(raw, (int, float)):
+        return True
+    try:
+        float(raw.strip())
+    except ValueError:
+        return False
+    return True
 
 
 def _limit_dimension(entry: Mapping[str, Any], where: str, registry: "Registry") -> tuple[str | None, str]:
@@ -190,12 +296,37 @@ class _Value:
 
 
 def evaluate_specs(run: "RunResult", rules: Sequence[SpecRule]) -> list[SpecVerdict]:
-    """Every rule that applies to the run's sample, in rule order."""
+    """Every rule that applies to the run, in rule order.
+
+    A rule applies when it covers the run's sample and, for a rule with a temperature, when the
+    run's recorded temperature (°C) lies within the rule's tolerance; a run of the sample whose
+    temperature is not recorded gets ``n/a`` from such a rule, saying so.
+    """
     verdicts = []
     for rule in rules:
-        if rule.applies_to(run.run.sample):
-            verdicts.append(_verdict(run.run.run_id, rule, _value_for(run, rule)))
+        if not rule.applies_to(run.run.sample):
+            continue
+        temperature = run.run.temperature
+        covered = rule.covers_temperature(temperature)
+        if covered is False:
+            continue  # measured at another temperature: not subject to this rule
+        if covered is None:
+            verdicts.append(_unknown_temperature(run.run.run_id, rule))
+            continue
+        verdict = _verdict(run.run.run_id, rule, _value_for(run, rule))
+        if rule.temperature is not None:
+            stated = f"rule {rule.condition}, run at {_number(temperature)} °C"  # type: ignore[arg-type]
+            verdict = replace(verdict, message=f"{stated}; {verdict.message}" if verdict.message else stated)
+        verdicts.append(verdict)
     return verdicts
+
+
+def _unknown_temperature(run_id: str, rule: SpecRule) -> SpecVerdict:
+    return SpecVerdict(run_id, rule.name, None, None, rule.unit, rule.minimum, rule.maximum, "n/a", False,
+                       NOT_APPLIED_TEMPERATURE_UNKNOWN,
+                       f"the rule applies {rule.condition} but the run's temperature is unknown (no temperature "
+                       "line or column), so the rule could not be applied",
+                       rule.temperature, rule.temperature_tolerance)
 
 
 def _value_for(run: "RunResult", rule: SpecRule) -> _Value:
@@ -249,7 +380,7 @@ def _parameter(run: "RunResult", model: str, name: str) -> _Value:
 def _verdict(run_id: str, rule: SpecRule, found: _Value) -> SpecVerdict:
     def row(verdict: str, straddles: bool, message: str) -> SpecVerdict:
         return SpecVerdict(run_id, rule.name, found.value, found.stderr, rule.unit, rule.minimum, rule.maximum,
-                           verdict, straddles, found.method, message)
+                           verdict, straddles, found.method, message, rule.temperature, rule.temperature_tolerance)
 
     if found.value is None:
         return row("n/a", False, found.note or "no value")

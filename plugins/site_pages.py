@@ -214,7 +214,8 @@ def verdict_view(v: Any) -> dict[str, Any]:
         "label": f"uncertain ({v.verdict})" if status == "uncertain" else v.verdict,
         "css": "na" if status == "n/a" else status,
         "value": value if v.value is not None else "—",
-        "limits": " and ".join(limits) + (f" {unit}" if unit and limits else ""),
+        "limits": " and ".join(limits) + (f" {unit}" if unit and limits else "")
+                  + (f" {v.condition}" if getattr(v, "condition", "") else ""),
         "method": v.method, "message": v.message, "run_id": v.run_id,
     }
 
@@ -643,7 +644,8 @@ def methods_context(result: Any) -> dict[str, Any]:
               "method": r.method if r.quantity in ("viscosity", "viscosity_ratio") else "—",
               "min": fmt(r.minimum) if r.minimum is not None else "—",
               "max": fmt(r.maximum) if r.maximum is not None else "—",
-              "unit": fmt_unit(r.unit), "sample": r.sample or "all samples"} for r in config.specs]
+              "unit": fmt_unit(r.unit), "sample": r.sample or "all samples",
+              "temperature": r.condition.removeprefix("at ") or "any"} for r in config.specs]
     plugins = [{"name": name, "origin": origin,
                 "provides": "; ".join(f"{kind}: {', '.join(ids)}" for kind, ids in registry.provided_by(name).items())}
                for name, origin in sorted(registry.plugins.items())]
@@ -656,7 +658,8 @@ def methods_context(result: Any) -> dict[str, Any]:
     inputs = [{"file": f.source_file, "sha256": f.sha256 or "unreadable",
                "runs": len(f.runs), "rejected": f.rejected is not None, "importer": f.importer or "—"}
               for f in result.files]
-    limits = [(key, _quantity_text(value, "torque")) for key, value in config.limits.items()]
+    limits = [(key, _quantity_text(value, "pressure" if key.startswith("stress") else "torque"))
+              for key, value in config.limits.items()]
     return {
         "root": "", "page": "methods",
         "used_types": sorted(used_types), "corrections": sorted(corrections),

@@ -151,3 +151,127 @@ def test_sample_summary_word_marks_uncertain_values() -> None:
     assert sample_word(summary["S1"]) == "UNCERTAIN" and sample_word(summary["S2"]) == "PASS"
     assert sample_word({"pass": 3, "fail": 1, "n/a": 1, "uncertain": 1}) == "FAIL"
     assert sample_word({"pass": 3, "fail": 0, "n/a": 1, "uncertain": 1}) == "INCOMPLETE"
+
+
+# --------------------------------------------------------------------------- temperature condition
+#
+# A rule with a temperature judges only runs whose recorded temperature lies within its tolerance
+# (README "Specifications"; viscosity specifications are stated at a temperature: common practice).
+# Temperature scales: t/°C = T/K − 273.15 (SI Brochure, 9th ed., 2019, the definition of the
+# Celsius temperature) and t/°F = 1.8·t/°C + 32 (the Fahrenheit scale; NIST SP 811, from memory),
+# so 298.15 K = 77 °F = 25 °C, and a difference of 1 K = 1.8 °F.
+
+TEMPERATURE_RUNS = {"t20": "20 °C", "t25": "25 °C", "t25-8": "25.8 °C", "t40": "40 °C", "no-temperature": None}
+
+
+def _temperature_study(tmp_path: Path, specs: str) -> Path:
+    study = tmp_path / "study"
+    rate = np.geomspace(0.5, 500.0, 16)
+    eta = K * rate ** (N - 1)  # the same exact power law at every temperature: only the condition differs
+    for name, temperature in TEMPERATURE_RUNS.items():
+        metadata = {"sample": "LT-2611"} | ({"temperature": temperature} if temperature else {})
+        write_export(study / f"{name}.csv", metadata, ["Shear rate [1/s]", "Viscosity [Pa·s]"],
+                     [[g, e] for g, e in zip(rate, eta)])
+    # one run whose temperature is a column (24.9 to 25.1 °C, mean 25 °C) and no metadata line
+    write_export(study / "t25-column.csv", {"sample": "LT-2611"},
+                 ["Shear rate [1/s]", "Viscosity [Pa·s]", "Temperature [°C]"],
+                 [[g, e, t] for g, e, t in zip(rate, eta, np.linspace(24.9, 25.1, rate.size))])
+    (study / "study.toml").write_text('[fit]\nmodels = ["power_law"]\n' + specs, encoding="utf-8")
+    return study
+
+
+def _rule(temperature: str, tolerance: str | None = None, name: str = "eta10") -> str:
+    extra = f'temperature_tolerance = "{tolerance}"\n' if tolerance else ""
+    return (f'[[spec]]\nname = "{name}"\nquantity = "viscosity"\nshear_rate = "10 1/s"\nmin = "6 Pa*s"\n'
+            f'max = "7 Pa*s"\ntemperature = "{temperature}"\n{extra}')
+
+
+def _rows(result, rule: str = "eta10") -> dict[str, object]:
+    return {v.run_id.removesuffix("-r1"): v for v in result.specs if v.rule == rule}
+
+
+def test_a_rule_at_25_degC_judges_only_the_runs_measured_at_25_degC(tmp_path: Path, registry) -> None:
+    plain = '[[spec]]\nname = "any temperature"\nquantity = "viscosity"\nshear_rate = "10 1/s"\nmin = "6 Pa*s"\n'
+    result = process_study(_temperature_study(tmp_path, _rule("25 degC") + plain), registry)
+    rows = _rows(result)
+    # 25 °C ± 1 K (the default tolerance): the 25 °C and 25.8 °C runs and the column with mean 25 °C;
+    # not the runs at 20 and 40 °C; the run without a temperature: n/a with the reason
+    assert set(rows) == {"t25", "t25-8", "t25-column", "no-temperature"}
+    for run in ("t25", "t25-8", "t25-column"):
+        assert rows[run].verdict == "pass"  # η(10 1/s) = 20·10^-0.5 = 6.32 Pa·s
+        assert rows[run].value == pytest.approx(K * 10 ** (N - 1), rel=1e-6)
+        assert "rule at 25 °C ± 1 K" in rows[run].message
+    assert "run at 25.8 °C" in rows["t25-8"].message
+    unknown = rows["no-temperature"]
+    assert unknown.verdict == "n/a" and unknown.value is None
+    assert "temperature is unknown" in unknown.message and "could not be applied" in unknown.message
+    # a rule without a temperature still judges every run of the sample, as before
+    assert set(_rows(result, "any temperature")) == {*TEMPERATURE_RUNS, "t25-column"}
+
+
+@pytest.mark.parametrize(("temperature", "tolerance", "judged"), [
+    ("77 degF", None, {"t25", "t25-8", "t25-column"}),      # 77 °F = 25 °C
+    ("298.15 K", None, {"t25", "t25-8", "t25-column"}),     # 298.15 K = 25 °C
+    ("25 °C", "0.5 K", {"t25", "t25-column"}),               # 25.8 °C is 0.8 K away
+    ("25 °C", "0.9 degF", {"t25", "t25-column"}),            # 0.9 °F = 0.5 K
+    ("25 °C", "1.8 degF", {"t25", "t25-8", "t25-column"}),  # 1.8 °F = 1 K
+    ("293.15 K", "2 K", {"t20"}),                            # 20 °C
+    ("104 °F", None, {"t40"}),                               # (104 − 32)/1.8 = 40 °C
+])
+def test_temperature_spellings_and_tolerances(tmp_path: Path, registry, temperature: str, tolerance: str | None,
+                                              judged: set[str]) -> None:
+    result = process_study(_temperature_study(tmp_path, _rule(temperature, tolerance)), registry)
+    rows = _rows(result)
+    assert set(rows) == judged | {"no-temperature"}
+    assert all(rows[run].verdict == "pass" for run in judged)
+    assert rows["no-temperature"].verdict == "n/a"
+
+
+def test_default_rule_name_table_and_summary_state_the_temperature(tmp_path: Path) -> None:
+    specs = ('[[spec]]\nquantity = "viscosity"\nshear_rate = "10 1/s"\nmin = "6 Pa*s"\ntemperature = "77 degF"\n'
+             'temperature_tolerance = "0.5 K"\n')
+    study = _temperature_study(tmp_path, specs)
+    result = CliRunner().invoke(main, ["run", str(study), "--quiet"], env={"GAMMADOT_NO_ENTRY_POINTS": "1"})
+    assert result.exit_code == 0, result.output
+    table = pq.read_table(study / "_gammadot" / "tables" / "specs.parquet").to_pylist()
+    assert {row["rule"] for row in table} == {"viscosity at 10 1/s at 25 °C ± 0.5 K"}
+    assert sorted(row["run_id"] for row in table) == ["no-temperature-r1", "t25-column-r1", "t25-r1"]
+    # one n/a (the run without a temperature), two passes; the summary names the condition
+    line = next(line.strip() for line in result.output.splitlines() if line.strip().startswith("LT-2611:"))
+    assert line.startswith("LT-2611: INCOMPLETE (2 pass, 0 fail, 1 n/a")
+    assert "1 n/a because the run temperature is unknown" in line, line
+    assert "temperature-bound rules: viscosity at 10 1/s at 25 °C ± 0.5 K" in line, line
+
+
+@pytest.mark.parametrize(("keys", "message"), [
+    ('temperature = "hot"', "[[spec]] #1 temperature: 'hot' is not a number with a unit"),
+    ('temperature = "5 Pa"', "[[spec]] #1 temperature: unit 'Pa' is a stress unit, but a temperature unit"),
+    ("temperature = 25", "[[spec]] #1 temperature: '25' has no unit"),
+    ('temperature = "-300 degC"', "[[spec]] #1 temperature: '-300 degC' is below absolute zero"),
+    ('temperature = "25 degC"\ntemperature_tolerance = "-0.5 K"',
+     "[[spec]] #1 temperature_tolerance must be a positive temperature difference"),
+    ('temperature = "25 degC"\ntemperature_tolerance = "1 Pa*s"',
+     "[[spec]] #1 temperature_tolerance: unit 'Pa*s' is a viscosity unit"),
+    ('temperature_tolerance = "1 K"', "[[spec]] #1 temperature_tolerance needs 'temperature'"),
+    ('temprature = "25 degC"', "unknown key 'temprature' (did you mean 'temperature'?)"),
+])
+def test_bad_temperature_condition_names_the_spec_and_the_key(tmp_path: Path, registry, keys: str,
+                                                              message: str) -> None:
+    (tmp_path / "study.toml").write_text(
+        f'[[spec]]\nquantity = "viscosity"\nshear_rate = "10 1/s"\nmax = "3 Pa*s"\n{keys}\n', encoding="utf-8")
+    with pytest.raises(StudyConfigError) as info:
+        load_study_config(tmp_path, registry)
+    assert str(info.value).startswith("study.toml: ") and message in str(info.value), str(info.value)
+
+
+def test_site_shows_the_temperature_condition(tmp_path: Path) -> None:
+    specs = _rule("25 degC", "0.5 K")
+    study = _temperature_study(tmp_path, specs)
+    result = CliRunner().invoke(main, ["run", str(study), "--quiet"], env={"GAMMADOT_NO_ENTRY_POINTS": "1"})
+    assert result.exit_code == 0, result.output
+    site = study / "_gammadot" / "site"
+    methods = (site / "methods.html").read_text(encoding="utf-8")
+    assert "<th scope=\"col\">Temperature</th>" in methods and "<td>25 °C ± 0.5 K</td>" in methods
+    run_pages = {p.name: p.read_text(encoding="utf-8") for p in (site / "runs").glob("*.html")}
+    page = next(text for name, text in run_pages.items() if name.startswith("t25-r1"))
+    assert "≥ 6 and ≤ 7 Pa·s at 25 °C ± 0.5 K" in page
