@@ -11,7 +11,14 @@ instrument's own figures.
 
 The torque is the export's torque column; for runs with a geometry but no torque column it is
 recovered from the apparent stress, M = τ_a/k_τ (:mod:`gammadot.plugins.geometry_facts`).
-Runs with neither (instrument values, no geometry) are not checked.
+
+A run with neither (instrument-computed values and no geometry, or a geometry without a known
+stress constant) has no torque to check. For those, and for every other run too, the study may
+state the instrument's stress window directly: ``[limits] stress_min`` / ``stress_max`` (Pa).
+Points whose |apparent shear stress| lies outside them are flagged and excluded like torque
+points (a point already flagged for its torque is not flagged twice). A run where neither the
+torque nor a stress limit can be checked gets one information finding saying so and how to
+enable the check, so the gap is never silent.
 """
 
 from __future__ import annotations
@@ -37,12 +44,37 @@ def torque_limits(context: CheckContext) -> tuple[float, float]:
             float(limits.get("torque_max", DEFAULT_TORQUE_MAX)))
 
 
+def stress_limits(context: CheckContext) -> tuple[float | None, float | None]:
+    """(τ_min, τ_max) in Pa from study.toml ``[limits] stress_min`` / ``stress_max``; ``None``
+    where the study sets none (there is no default: the window depends on the geometry)."""
+    limits = context.study.limits
+    low, high = limits.get("stress_min"), limits.get("stress_max")
+    return (None if low is None else float(low)), (None if high is None else float(high))
+
+
 def find_torque_out_of_range(run: Run, context: CheckContext) -> list[Finding]:
-    """A point finding (excluded) per torque outside the limits, plus the run's window."""
+    """A point finding (excluded) per torque outside ``[limits] torque_min``/``torque_max``
+    (N·m) and per apparent stress outside ``[limits] stress_min``/``stress_max`` (Pa), plus the
+    run's window; one information finding when neither can be checked."""
     facts = geometry_facts(context.geometry)
     values, measured = torque(run, facts)
-    if values is None:
-        return []
+    findings = [] if values is None else _torque_points(values, measured, context)
+    flagged = {f.point_index for f in findings}
+    stress = run.columns.get("shear_stress_apparent", run.columns.get("shear_stress"))
+    stress_low, stress_high = stress_limits(context)
+    stress_checked = stress is not None and (stress_low is not None or stress_high is not None)
+    if stress_checked:
+        findings += [f for f in _stress_points(stress, stress_low, stress_high) if f.point_index not in flagged]
+    if values is None and not stress_checked:
+        findings.append(_not_checked(context))
+    if facts is not None and values is not None:
+        low, high = torque_limits(context)
+        findings.append(_window(run, facts, low, high))
+    return findings
+
+
+def _torque_points(values: np.ndarray, measured: bool, context: CheckContext) -> list[Finding]:
+    """A finding (excluded) per point whose |torque| (N·m) is outside the torque limits."""
     low, high = torque_limits(context)
     source = "torque" if measured else "torque (from the stress and the geometry)"
     findings = []
@@ -60,9 +92,46 @@ def find_torque_out_of_range(run: Run, context: CheckContext) -> list[Finding]:
             f"{with_prefix(high, 'N·m')} ([limits] torque_max), so the reading is saturated and the point "
             "is left out of the fit",
             point_index=int(index), exclude=True, value=float(values[index]), unit="N·m"))
-    if facts is not None:
-        findings.append(_window(run, facts, low, high))
     return findings
+
+
+def _stress_points(stress: np.ndarray, low: float | None, high: float | None) -> list[Finding]:
+    """A finding (excluded) per point whose |apparent shear stress| (Pa) is outside the limits."""
+    findings = []
+    magnitude = np.abs(stress)
+    if low is not None:
+        for index in np.flatnonzero(magnitude < low):
+            findings.append(Finding(
+                CHECK_ID, "warning",
+                f"apparent shear stress {with_prefix(stress[index], 'Pa')} is below the lowest stress the "
+                f"instrument resolves, {with_prefix(low, 'Pa')} ([limits] stress_min), so the reading here is "
+                "mostly instrument noise and the point is left out of the fit",
+                point_index=int(index), exclude=True, value=float(stress[index]), unit="Pa"))
+    if high is not None:
+        for index in np.flatnonzero(magnitude > high):
+            findings.append(Finding(
+                CHECK_ID, "error",
+                f"apparent shear stress {with_prefix(stress[index], 'Pa')} is above the instrument's maximum "
+                f"{with_prefix(high, 'Pa')} ([limits] stress_max), so the reading is saturated and the point "
+                "is left out of the fit",
+                point_index=int(index), exclude=True, value=float(stress[index]), unit="Pa"))
+    return sorted(findings, key=lambda f: f.point_index)
+
+
+def _not_checked(context: CheckContext) -> Finding:
+    """Run-level info: why the torque range could not be checked, and how to enable it."""
+    geometry = context.geometry
+    if geometry is None:
+        why = "the run has no torque column and no geometry (it uses the instrument's own shear stress)"
+        enable = "name the run's geometry in study.toml ([geometries.<id>] and the export's geometry line)"
+    else:
+        why = (f"the run has no torque column and its geometry {geometry.id} ({geometry.type}) gives no torque "
+               "from the stress")
+        enable = "export the torque column if the instrument records one"
+    return Finding(CHECK_ID, "info",
+                   f"the torque range was not checked: {why}, so points below the instrument's resolution or "
+                   f"above its maximum would go unnoticed; to check them set [limits] stress_min and stress_max "
+                   f"(the instrument's stress window with this measuring system, in Pa) or {enable}")
 
 
 def _window(run: Run, facts: GeometryFacts, low: float, high: float) -> Finding:
@@ -85,10 +154,10 @@ def _window(run: Run, facts: GeometryFacts, low: float, high: float) -> Finding:
 
 TORQUE_RANGE = Check(
     id=CHECK_ID,
-    title="Torque outside the instrument's range",
+    title="Torque or stress outside the instrument's range",
     severity="warning",
     run=find_torque_out_of_range,
-    reference=("instrument torque limits from study.toml [limits]; defaults: common practice for air-bearing "
+    reference=("instrument torque and stress limits from study.toml [limits]; torque defaults: common practice for air-bearing "
                "rheometers (order of magnitude, from memory); stress constants: Macosko, Rheology (1994) ch. 5"),
 )
 

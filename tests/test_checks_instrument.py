@@ -76,6 +76,104 @@ def test_torque_is_recovered_from_the_stress_when_the_export_has_none(geometry, 
     assert "from the stress" in findings[0].message
 
 
-def test_instrument_values_without_torque_or_geometry_are_not_checked() -> None:
-    rate = np.geomspace(0.1, 100.0, 4)
-    assert find_torque_out_of_range(make_run(flow_columns(rate, 1e-9 * rate)), context_for("torque_range")) == []
+# --------------------------------------------------------------------------- stress limits
+#
+# [limits] stress_min / stress_max (README "[limits]"): points whose |apparent shear stress| lies
+# outside them are flagged and excluded, for every run. Unit spellings are read through study.toml
+# as a user writes them; 50 mPa = 0.05 Pa (SI prefix milli = 10⁻³, SI Brochure 9th ed.).
+
+STRESS = np.array([0.01, 0.04, 0.06, 1.0, 100.0, 600.0])  # Pa
+
+
+def _limits(registry, text: str) -> dict[str, float]:
+    """[limits] of a study.toml, parsed and validated as the core does it."""
+    import tomllib
+
+    from gammadot.config import parse_study_config
+
+    return dict(parse_study_config(tomllib.loads("[limits]\n" + text), registry, default_title="t").limits)
+
+
+def _instrument_run(stress: np.ndarray = STRESS):
+    """Instrument-computed values: rate, stress, viscosity; no torque column, no geometry."""
+    return make_run(flow_columns(np.geomspace(0.1, 1000.0, len(stress)), stress))
+
+
+@pytest.mark.parametrize("spelling", ['"50 mPa"', '"0.05 Pa"', '"5e-2 N/m^2"', "0.05"])
+def test_stress_below_stress_min_is_excluded_in_a_run_without_torque_or_geometry(registry, spelling: str) -> None:
+    limits = _limits(registry, f"stress_min = {spelling}\n")
+    assert limits["stress_min"] == pytest.approx(0.05, rel=1e-12)
+    findings = find_torque_out_of_range(_instrument_run(), context_for("torque_range", limits=limits))
+    assert excluded(findings) == [0, 1]  # 0.01 and 0.04 Pa < 0.05 Pa; 0.06 Pa is inside
+    assert all(f.severity == "warning" and "[limits] stress_min" in f.message and "50 mPa" in f.message
+               for f in findings)
+    assert findings[0].value == pytest.approx(0.01) and findings[0].unit == "Pa"
+    assert not any(f.point_index is None for f in findings)  # stress was checked: no "not checked" note
+
+
+def test_stress_above_stress_max_is_excluded_and_negative_stress_is_judged_by_its_size(registry) -> None:
+    limits = _limits(registry, 'stress_min = "50 mPa"\nstress_max = "0.5 kPa"\n')
+    stress = STRESS * np.array([1, 1, 1, -1, 1, -1])  # a reversed direction gives negative stress
+    findings = find_torque_out_of_range(_instrument_run(stress), context_for("torque_range", limits=limits))
+    assert excluded(findings) == [0, 1, 5]  # |−600 Pa| > 500 Pa
+    high = next(f for f in findings if f.point_index == 5)
+    assert high.severity == "error" and "[limits] stress_max" in high.message and "500 Pa" in high.message
+
+
+def test_stress_limits_do_not_fire_when_every_stress_is_inside(registry) -> None:
+    limits = _limits(registry, 'stress_min = "5 mPa"\nstress_max = "1 kPa"\n')
+    assert find_torque_out_of_range(_instrument_run(), context_for("torque_range", limits=limits)) == []
+
+
+def test_stress_limits_also_apply_to_runs_with_torque_without_flagging_a_point_twice() -> None:
+    torque = np.array([0.05e-6, 1e-6, 1e-5, 1e-3, 0.01])  # the first is below the default 0.1 µN·m
+    run, geometry = _cone_run(torque)
+    stress = 3 * torque / (2 * math.pi * 0.025**3)  # Macosko ch. 5: 1.5e-3, 0.031, 0.31, 31, 306 Pa
+    limits = {"stress_min": 0.1, "stress_max": 100.0}
+    findings = find_torque_out_of_range(run, context_for("torque_range", geometry=geometry, limits=limits))
+    assert excluded(findings) == [0, 1, 4]
+    assert [f.point_index for f in findings if f.point_index is not None] == [0, 1, 4]  # point 0 once
+    assert "torque" in findings[0].message and "stress_min" in findings[1].message
+    assert findings[1].value == pytest.approx(stress[1]) and "stress_max" in findings[2].message
+
+
+# --------------------------------------------------------------------------- nothing to check
+
+def test_a_run_without_torque_geometry_or_stress_limits_gets_one_note_saying_it_was_not_checked() -> None:
+    findings = find_torque_out_of_range(_instrument_run(), context_for("torque_range"))
+    (note,) = findings  # no point is flagged: without a torque or a stress limit nothing can be judged
+    assert note.severity == "info" and note.point_index is None and not note.exclude
+    assert "torque range was not checked" in note.message and "no torque column and no geometry" in note.message
+    assert "[limits] stress_min" in note.message and "study.toml" in note.message
+
+
+def test_a_geometry_without_a_stress_constant_and_no_torque_gets_the_note_naming_it() -> None:
+    from gammadot.config import GeometryConfig
+
+    dial = GeometryConfig("field-dial", "direct_indicating", {})  # no torque relation in geometry_facts
+    (note,) = find_torque_out_of_range(_instrument_run(), context_for("torque_range", geometry=dial))
+    assert note.severity == "info" and "field-dial (direct_indicating)" in note.message
+
+
+def test_no_note_for_runs_with_torque() -> None:
+    torque = np.geomspace(1e-6, 1e-2, 6)
+    run, geometry = _cone_run(torque)
+    with_geometry = find_torque_out_of_range(run, context_for("torque_range", geometry=geometry))
+    without_geometry = find_torque_out_of_range(run, context_for("torque_range"))  # torque column only
+    assert not any("not checked" in f.message for f in with_geometry + without_geometry)
+    assert without_geometry == []  # all torques inside the default range; no window without a geometry
+
+
+def test_stress_limits_from_study_toml_exclude_points_through_the_pipeline(tmp_path, registry) -> None:
+    from gammadot.pipeline import process_study
+
+    from support import write_export
+
+    rate = np.geomspace(0.1, 100.0, 8)
+    stress = 0.5 * rate  # Newtonian 0.5 Pa·s: 0.05, 0.134, 0.360 ... 50 Pa (rate 0.1·1000^(k/7) 1/s)
+    write_export(tmp_path / "mw-oil.csv", {"sample": "MW-CO-0412"}, ["Shear rate [1/s]", "Shear stress [Pa]"],
+                 [[g, t] for g, t in zip(rate, stress)])
+    (tmp_path / "study.toml").write_text('[limits]\nstress_min = "150 mPa"\n', encoding="utf-8")
+    (run,) = process_study(tmp_path, registry).runs
+    assert [bool(x) for x in run.excluded] == list(stress < 0.15)  # 0.05 Pa and 0.134 Pa out
+    assert int(run.excluded.sum()) == 2 and all("torque_range" in run.flags[i] for i in (0, 1))
