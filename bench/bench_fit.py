@@ -24,6 +24,13 @@ gammadot / bare loop (carreau_yasuda; herschel_bulkley; 200-run fit stage):
   cores with a full test run; three more runs after it: 1.57, 1.23, 1.28; 1.04, 1.75, 1.55;
   0.85, 1.40, 1.26. On this shared machine a single run scatters by ±0.3: compare medians
   (after, six runs: carreau_yasuda ≈ 1.38, herschel_bulkley ≈ 1.55).
+
+Measured 2026-12-02, same machine, load average 2.2–2.7 (other test runs alongside), after the
+covariance from the inverse of the column-scaled normal matrix when its variance inflation
+factors are below 10⁴ (SVD only otherwise), and after moving off scipy.linalg's LAPACK (its
+OpenBLAS spread a 3×3 Cholesky over threads: fit stage 2.4× the bare loop under load); three
+runs: carreau_yasuda 1.23, 1.27, 1.26; herschel_bulkley 1.24, 1.19, 1.25; 200-run fit stage
+1.05, 1.12, 1.14 (2.44–2.47 s).
 """
 
 from __future__ import annotations

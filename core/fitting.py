@@ -179,7 +179,8 @@ def summarise(prepared: PreparedFit, profiles: bool = True) -> FitResult:
             log_residual = np.log(np.asarray(model.function(x, **best), dtype=float)) - np.log(y)
     if not curve.success:
         return _without_parameters(model, n, x, f"did not converge: {curve.message}")
-    if not np.all(np.isfinite(log_residual)):
+    sum_squares = float(log_residual @ log_residual)  # finite only when every residual is
+    if not math.isfinite(sum_squares):
         return _without_parameters(model, n, x, "the model gives non-positive or undefined values at the data")
     aicc, bic = information_criteria(curve.rss, n, k)
     verdicts = assess(curve, model.parameters, prepared.profile if profiles else None)
@@ -193,7 +194,7 @@ def summarise(prepared: PreparedFit, profiles: bool = True) -> FitResult:
     if not math.isfinite(aicc):
         notes.append(f"AICc needs more than {k + 2} points: not considered for selection")
     return FitResult(
-        model.id, True, n, aicc, bic, float(np.sqrt(np.mean(log_residual ** 2))),
+        model.id, True, n, aicc, bic, math.sqrt(sum_squares / n),
         "; ".join(["converged", *notes]), float(x.min()), float(x.max()), estimates,
         correlations=_correlations(curve), best_fit=best, covariance=curve.covariance,
         fixed=tuple(name for name, at in zip(curve.names, curve.at_bound) if at), supported=supported)
