@@ -15,7 +15,10 @@ Output: a :class:`~gammadot.records.Conversion` whose true values are taken at
 
 A yield-stress material leaves a plug next to the outer wall when τ_o = τ_i/δ² < τ_y
 (Reiner–Riwlin regime). There the local power-law correction does not apply: such points keep
-their apparent values and are flagged (warning) and kept out of fits.
+their apparent values and are flagged (warning) and kept out of fits. The yield stress comes
+from a Herschel–Bulkley fit in the gap and counts only with evidence of a plug
+(:func:`plug_yield_stress`), so a liquid whose stress is raised at high speed by Taylor
+vortices is not taken for a yield-stress material.
 """
 
 from __future__ import annotations
@@ -23,22 +26,47 @@ from __future__ import annotations
 import numpy as np
 
 from .correction_size import correction_size_results
-from .couette import (estimate_yield_stress, krieger_inner_rate, local_power_law_rate, newtonian_inner_rate,
+from .couette import (YieldStressEstimate, estimate_yield_stress, krieger_inner_rate, local_power_law_rate, newtonian_inner_rate,
                       representative_rate, representative_stress_factor)
 from .records import Conversion, Finding, Result
 from .slopes import log_slopes
 
-__all__ = ["KRIEGER", "VALUES_AT", "convert_couette"]
+__all__ = ["KRIEGER", "VALUES_AT", "convert_couette", "plug_yield_stress"]
 
 KRIEGER = "krieger_wide_gap"
 VALUES_AT = ("representative", "inner_wall")
+MAX_PLUG_FLOW_INDEX = 1.1  # see plug_yield_stress
+
+
+def plug_yield_stress(omega: np.ndarray, tau_i: np.ndarray, delta: float) -> YieldStressEstimate | None:
+    """The yield-stress estimate that can leave a plug in the gap, or ``None`` without evidence.
+
+    A plug shows as a flow curve that flattens towards a stress plateau at LOW speed. A curve
+    that instead bends upwards at high speed (Taylor vortices or other secondary flow in a
+    low-viscosity liquid, or shear thickening) can also be fitted with τ_y > 0, but only together
+    with a flow index n > 1. So the estimate counts only when it is significant (τ_y > 2σ), its
+    flow index is at most ``MAX_PLUG_FLOW_INDEX`` (Herschel–Bulkley materials have n ≤ 1 in
+    practice, Bingham n = 1: common practice, with 0.1 allowed for scatter), and, when the
+    lower two thirds of the speeds hold at least five points, the same fit on those points alone
+    (away from any high-speed disturbance) finds a significant yield stress too.
+    """
+    estimate = estimate_yield_stress(omega, tau_i, delta)
+    if estimate is None or not estimate.significant or estimate.flow_index > MAX_PLUG_FLOW_INDEX:
+        return None
+    usable = np.flatnonzero(np.isfinite(omega) & np.isfinite(tau_i) & (omega > 0) & (tau_i > 0))
+    lower = usable[np.argsort(omega[usable], kind="stable")][: (2 * len(usable)) // 3]
+    if len(lower) >= 5:
+        confirmation = estimate_yield_stress(omega[lower], tau_i[lower], delta)
+        if confirmation is None or not confirmation.significant:
+            return None
+    return estimate
 
 
 def _partly_sheared(omega: np.ndarray, tau_i: np.ndarray, delta: float) -> tuple[np.ndarray, list[Finding], tuple[Result, ...]]:
-    """Points whose outer-wall stress lies below a significant yield-stress estimate."""
+    """Points whose outer-wall stress lies below a yield-stress estimate with evidence of a plug."""
     mask = np.zeros(len(tau_i), dtype=bool)
-    estimate = estimate_yield_stress(omega, tau_i, delta)
-    if estimate is None or not estimate.significant:
+    estimate = plug_yield_stress(omega, tau_i, delta)
+    if estimate is None:
         return mask, [], ()
     with np.errstate(invalid="ignore"):
         outer = tau_i / delta**2

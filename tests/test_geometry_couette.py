@@ -269,3 +269,39 @@ def test_correction_size_results() -> None:
     assert results["correction_shear_stress_max"].value == 0.0
     assert {r.unit for r in conversion.results if r.name.startswith("correction_")} == {"1"}
     assert results["correction_shear_rate_max"].method == "krieger_wide_gap"
+
+
+@pytest.mark.parametrize("delta", [1.0847, 1.2])
+@pytest.mark.parametrize("exponent", [0.25, 0.5, 1.0])
+def test_liquid_with_vortex_raised_stress_is_not_taken_for_a_yield_stress(delta: float, exponent: float) -> None:
+    """A Newtonian liquid (Margules torque, Bird, Stewart & Lightfoot 2nd ed. §3.6) whose torque
+    above an onset speed rises faster than the speed, as with Taylor vortices (the torque of
+    supercritical Couette flow grows faster than Ω: Taylor 1923 and common practice; the form
+    (Ω/Ω_c)^exponent here is an assumption standing for any such rise), 1 % noise. The curve
+    bends upwards at high speed, which a Herschel–Bulkley fit can mimic only with τ_y > 0 and
+    n > 1: no point may be flagged as partly sheared (a plug needs a curve that flattens at low
+    speed). Before the plug-evidence rule the lowest point was flagged for exponents ≥ 0.5."""
+    omega = np.geomspace(0.5, 300.0, 15)
+    onset = omega[10]
+    torque = margules_torque(1e-3, omega, delta) * np.where(omega > onset, (omega / onset) ** exponent, 1.0)
+    torque *= 1 + 0.01 * np.random.default_rng(3).standard_normal(len(omega))
+    conversion = convert(omega, torque, delta)
+    assert not [f for f in conversion.notes if f.check == "geometry.partly_sheared"]
+    assert not [r for r in conversion.results if r.name == "yield_stress_estimate"]
+
+
+def test_herschel_bulkley_partly_sheared_points_are_flagged() -> None:
+    """A shear-thinning yield-stress material (Herschel–Bulkley τ_y = 10 Pa, K = 2 Pa·s^0.5,
+    n = 0.5) in a gap δ = 1.2: τ_i from the Couette integral Ω = ½∫γ̇(τ)/τ dτ with the plug
+    (Reiner–Riwlin regime, Macosko, Rheology 1994, §5.3 — from memory) by scipy quadrature;
+    exactly the points with τ_i/δ² < τ_y are flagged, and the yield stress estimate is within 2 %."""
+    tau_y, consistency, index, delta = 10.0, 2.0, 0.5, 1.2
+    rate = lambda tau: (max(tau - tau_y, 0.0) / consistency) ** (1.0 / index)  # noqa: E731
+    omega = np.geomspace(0.005, 50.0, 20)
+    tau_i = np.array([oracle.couette_inner_stress(rate, w, delta, tau_y) for w in omega])
+    conversion = convert(omega, torque_of(tau_i), delta)
+    flagged = sorted(f.point_index for f in conversion.notes if f.check == "geometry.partly_sheared")
+    expected = list(np.flatnonzero(tau_i / delta**2 < tau_y))
+    assert len(expected) >= 3 and flagged == expected
+    estimate = next(r for r in conversion.results if r.name == "yield_stress_estimate")
+    assert estimate.value == pytest.approx(tau_y, rel=0.02)
