@@ -157,8 +157,9 @@ TORQUE_RANGE = Check(
     title="Torque or stress outside the instrument's range",
     severity="warning",
     run=find_torque_out_of_range,
-    reference=("instrument torque and stress limits from study.toml [limits]; torque defaults: common practice for air-bearing "
-               "rheometers (order of magnitude, from memory); stress constants: Macosko, Rheology (1994) ch. 5"),
+    reference=("instrument torque and stress limits from study.toml [limits]; torque defaults: common practice "
+               "for air-bearing rheometers (order of magnitude, from memory); stress constants: Macosko, "
+               "Rheology (1994) ch. 5"),
 )
 
 
