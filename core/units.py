@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import functools
 import re
+import threading
 from dataclasses import dataclass
 from typing import TYPE_CHECKING, Any
 
@@ -56,14 +57,24 @@ _DEGREE_STEPS = {"degc": "delta_degC", "c": "delta_degC", "degf": "delta_degF", 
 
 _SUPERSCRIPTS = str.maketrans({"⁻": "-", "¹": "1", "²": "2", "³": "3", "⁰": "0"})
 
+# pint's registry parses and caches lazily and is not documented as thread-safe; the watcher
+# runs studies on worker threads, so every use of it goes through this lock (re-entrant: the
+# helpers below call each other). Results are memoised, so the lock is rarely contended.
+_PINT_LOCK = threading.RLock()
+
 
 @functools.lru_cache(maxsize=1)
-def registry() -> "pint.UnitRegistry":
-    """The process-wide pint registry (built on first use; pint is slow to import)."""
+def _build_registry() -> "pint.UnitRegistry":
     import pint
 
-    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
-    return ureg
+    return pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+
+
+def registry() -> "pint.UnitRegistry":
+    """The process-wide pint registry (built once, on first use, under a lock: pint is slow to
+    import and two threads must not build two registries)."""
+    with _PINT_LOCK:
+        return _build_registry()
 
 
 def _base_cleanup(text: str) -> str:
@@ -120,6 +131,11 @@ def parse_unit(text: str, dimension: str) -> "pint.Unit":
 
     Raises :class:`UnitError` with a sentence naming the unit and what was expected.
     """
+    with _PINT_LOCK:
+        return _parse_unit(text, dimension)
+
+
+def _parse_unit(text: str, dimension: str) -> "pint.Unit":
     ureg = registry()
     want = DIMENSIONS[dimension]
     wrong: str | None = None
@@ -173,9 +189,10 @@ def to_si(values: "np.ndarray | float", unit_text: str, dimension: str) -> Any:
 @functools.lru_cache(maxsize=512)
 def _linear_map(unit: Any, target: str) -> tuple[float, float]:
     """(factor, offset) with ``si = value * factor + offset``; exact for affine units."""
-    ureg = registry()
-    q0 = ureg.Quantity(0.0, unit).to(target).magnitude
-    q1 = ureg.Quantity(1.0, unit).to(target).magnitude
+    with _PINT_LOCK:
+        ureg = registry()
+        q0 = ureg.Quantity(0.0, unit).to(target).magnitude
+        q1 = ureg.Quantity(1.0, unit).to(target).magnitude
     return float(q1 - q0), float(q0)
 
 

@@ -88,3 +88,21 @@ def test_parse_quantity(text: str, dimension: str, si: float) -> None:
 def test_arrays_convert_elementwise(value: float) -> None:
     converted = to_si(np.array([value, value]), "cP", "viscosity")
     assert converted[0] == converted[1] == pytest.approx(value * 1e-3, rel=1e-12, abs=1e-300)
+
+
+def test_units_parse_correctly_from_many_threads_at_once() -> None:
+    """The watcher runs studies on worker threads: eight threads reading unit spellings at the
+    same time, from a cold cache, all get the SI factors of NIST SP 811 App. B.8/B.9
+    (1 cP = 1 mPa·s = 10⁻³ Pa·s; 1 µN·m = 10⁻⁶ N·m; 1 rpm = 2π/60 rad/s)."""
+    import math
+    from concurrent.futures import ThreadPoolExecutor
+
+    from gammadot import units
+
+    units.parse_unit.cache_clear()
+    units._linear_map.cache_clear()
+    cases = [("cP", "viscosity", 1e-3), ("mPas", "viscosity", 1e-3), ("µN·m", "torque", 1e-6),
+             ("rpm", "angular_velocity", 2 * math.pi / 60), ("kPa", "pressure", 1e3), ("mN m", "torque", 1e-3)] * 20
+    with ThreadPoolExecutor(max_workers=8) as pool:
+        got = list(pool.map(lambda case: float(units.to_si(1.0, case[0], case[1])), cases))
+    assert got == pytest.approx([factor for _, _, factor in cases], rel=1e-12)
