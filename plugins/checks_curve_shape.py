@@ -6,17 +6,50 @@ decreasing τ(γ̇) is mechanically unstable; Yerushalmi, Katz & Shinnar, Chem. 
 
 - ``sample_loss``: on cone-plate and parallel plates, at high rates the sample can be flung out of
   the gap or its free edge can fracture. The measured stress then drops suddenly with increasing
-  rate (common practice; edge fracture: Tanner & Keentok, J. Rheol. 27 (1983) 47 — from memory).
-  On a rising-rate sweep, the first point whose stress lies more than ``drop`` (default 10 %)
-  below both points before it, with the next point still more than half that below the point
-  before the drop, marks the loss: it and every later point are left out of the fit (the sample
-  in the gap is no longer the one loaded). A loss too small to make the stress fall (a steep
-  curve measured in coarse steps) is not seen here; the fit-residual check may show it.
+  rate, and for good: the sample in the gap is no longer the one loaded (common practice; edge
+  fracture: Tanner & Keentok, J. Rheol. 27 (1983) 47 — from memory). Two things look alike and
+  are not losses: noise at the torque floor (10–20 % scatter at the low-rate start of a sweep,
+  which the curve climbs out of) and structural breakdown of a thixotropic sample (the rising
+  sweep bends over and falls, gradually, as the structure is sheared down). So point k of a
+  rising-rate sweep (ordered by rate, positions 0…N−1) starts a loss only when all of these hold:
+
+  1. it fell: τ_k < (1 − ``drop``)·min(τ_{k−1}, τ_{k−2}) (default 10 %; against both points
+     before it, so one high outlier cannot fake a drop);
+  2. it lasts: the next point, if any, is still more than ``drop``/2 below τ_{k−1} (one low
+     outlier is not a loss);
+  3. it is at the high-rate end: ln γ̇_k lies in the upper half of the sweep's span of ln γ̇
+     (inertia that flings sample out and the normal stresses that fracture the free edge both
+     grow with rate; torque-floor noise sits at the low end);
+  4. it does not recover: none of the (up to) :data:`RECOVERY_POINTS` (3) points after it climbs
+     back to within ``drop``/2 of the curve the stress was on before the drop,
+     τ_{k−1}·(γ̇/γ̇_{k−1})^s, with s the median local slope d ln τ/d ln γ̇ of the (up to)
+     :data:`PRECEDING_STEPS` (8) steps before the drop, taken between 0 (the pre-drop level
+     itself) and 1 (a Newtonian rise): a loss is irreversible, a dip in the noise is not. (Only
+     the next three points: the remaining sample still rises with rate, and over a decade or
+     more an extrapolated slope is no longer a fair yardstick.)
+  5. it is abrupt: the change of slope at the drop, b = |d_k − d_{k−1}| with
+     d_j = ln τ_j − ln τ_{j−1}, is more than :data:`ABRUPTNESS` (2) times the fall of the slope
+     over the three steps before it, d_{k−4} − d_{k−1} (a breakdown bends the curve over several
+     points first: its slope was already falling by as much as it falls at the drop; noise
+     adds only about 2σ to that difference), and more than :data:`NOISE_Z` (4) times the RMS
+     change of slope |d_j − d_{j−1}| over the (up to) :data:`PRECEDING_STEPS` (8) steps before
+     it (the scatter of a second difference: noise makes the preceding changes as large as the
+     drop). At least two steps before it are needed. A loss is one step on a curve that was
+     rising as before.
+
+  It and every later point are left out of the fit. A loss too small to make the stress fall
+  (a steep curve measured in coarse steps) is not seen here (the fit-residual check may show
+  it), and a structural breakdown completed within one step cannot be told from a loss by the
+  curve's shape alone.
 - ``non_monotonic``: the stress falls with increasing rate over a range of at least two points,
   by more than ``tolerance`` (default 10 %) below the highest stress before them, on any sweep
   ordered by rate: possible shear banding or wall slip. A run-level warning with the range; points are
   kept (the data are real, a model just cannot describe them). Points already explained by a
-  sample loss are not counted again.
+  sample loss are not counted again. On the rising sweep of a run whose falling sweep lies below
+  it (a significant hysteresis loop, :func:`gammadot.plugins.checks_thixotropy.significant_loop`)
+  the message says instead that the fall is most likely structure breaking down with time under
+  shear (thixotropy): the stress of a rested sample passes a maximum as it is sheared down
+  (Barnes, J. Non-Newtonian Fluid Mech. 70 (1997) 1 — from memory).
 
 Both are made robust to one outlier (an air bubble): a drop must show against the two points
 before it and persist at the next, and the falling-curve test runs on the running median of
@@ -28,6 +61,7 @@ Default thresholds: 10 % is about seven times the 1–2 % scatter of a steady-sh
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -37,12 +71,25 @@ from gammadot.hookspecs import hookimpl
 from gammadot.records import Check, CheckContext, CheckSetting, Finding
 
 from .check_inputs import num, percent, setting, usable
+from .checks_thixotropy import significant_loop
 from .geometry_facts import PLATE_TYPES
 from .rate_sweeps import sweeps
 
 SAMPLE_LOSS_ID = "sample_loss"
 NON_MONOTONIC_ID = "non_monotonic"
 MIN_DECREASING_POINTS = 2
+# Sample loss (criteria 3–5 of the docstring). Judgement, tried on synthetic curves (1.5 %
+# scatter, torque-floor noise, step and rim losses on power-law, Carreau and Herschel–Bulkley
+# curves, 240 Moore-type thixotropic loops): the upper half of the log-rate span keeps the noisy
+# low-rate start out; a bend twice the fall of the slope over the three steps before it is no
+# gradual breakdown; 4 RMS changes of slope stand out of the noise; three points after the drop
+# show whether the curve came back.
+UPPER_PART = 0.5
+ABRUPTNESS = 2.0
+LOCAL_STEPS = 4  # d_{k−4} … d_{k−1}: the three steps before the drop
+NOISE_Z = 4.0
+PRECEDING_STEPS = 8
+RECOVERY_POINTS = 3
 
 SAMPLE_LOSS_SETTINGS = (
     CheckSetting("drop", "dimensionless", 0.10,
@@ -68,24 +115,54 @@ class StressDrop:
 
 
 def sample_loss_start(rate: np.ndarray, stress: np.ndarray, drop: float) -> StressDrop | None:
-    """The first lasting sudden drop on a rising-rate sweep (``low`` is where the loss starts).
-
-    Point k starts a loss when, with the rate rising, its stress lies more than ``drop`` below
-    both points before it (so one high outlier before it cannot fake a drop) and the next point,
-    if any, still lies more than ``drop``/2 below the point before the drop (so one low outlier
-    is not taken for a loss).
-    """
+    """The first lasting, abrupt, irreversible drop at the high-rate end of a rising-rate sweep
+    (``low`` is where the loss starts), or ``None``; the five criteria are in the module's
+    docstring. ``rate`` in 1/s, ``stress`` in Pa, ``drop`` a fraction."""
     for sweep in sweeps(rate, usable(rate, stress)):
         if sweep.direction < 0:
             continue
         order = sweep.by_rate()
+        log_rate, log_stress = np.log(rate[order]), np.log(stress[order])
         for k in range(2, len(order)):
-            before, previous, now = stress[order[k - 2]], stress[order[k - 1]], stress[order[k]]
-            fell = now < (1.0 - drop) * min(previous, before)
-            lasting = k + 1 == len(order) or stress[order[k + 1]] < (1.0 - drop / 2) * previous
-            if fell and lasting:
+            if _is_loss(log_rate, log_stress, k, drop):
+                previous, now = stress[order[k - 1]], stress[order[k]]
                 return StressDrop(int(order[k - 1]), float(previous), int(order[k]), float(1.0 - now / previous), True)
     return None
+
+
+def _is_loss(x: np.ndarray, y: np.ndarray, k: int, drop: float) -> bool:
+    """Whether position ``k`` of a rising sweep (``x`` = ln γ̇ increasing, ``y`` = ln τ) starts a
+    sample loss: criteria 1–5 of the module's docstring, cheapest first."""
+    fell = y[k] < np.log(1.0 - drop) + min(y[k - 1], y[k - 2])
+    lasting = k + 1 == len(y) or y[k + 1] < np.log(1.0 - drop / 2) + y[k - 1]
+    high_end = x[k] >= x[0] + UPPER_PART * (x[-1] - x[0])
+    if not (fell and lasting and high_end):
+        return False
+    first = max(1, k - PRECEDING_STEPS)
+    steps = np.diff(y[first - 1:k])  # d_j = y_j − y_{j−1} for j = first … k−1
+    if len(steps) < 2:
+        return False  # no change of slope before it to compare with: a trend needs three points
+    slope = float(np.clip(np.median(steps / np.diff(x[first - 1:k])), 0.0, 1.0))
+    after = slice(k + 1, k + 1 + RECOVERY_POINTS)
+    trend = y[k - 1] + slope * (x[after] - x[k - 1])  # the curve before the drop, carried on
+    if np.any(y[after] >= trend + np.log(1.0 - drop / 2)):
+        return False  # climbed back to the curve it was on: noise or a transient, not a loss
+    bend = abs((y[k] - y[k - 1]) - steps[-1])
+    gradual = bend <= ABRUPTNESS * float(steps[-min(LOCAL_STEPS, len(steps))] - steps[-1])
+    noisy = bend <= NOISE_Z * math.sqrt(6.0) * _point_scatter(x[first - 1:k], y[first - 1:k])
+    return not (gradual or noisy)
+
+
+def _point_scatter(x: np.ndarray, y: np.ndarray) -> float:
+    """The scatter σ of ln τ about the curve over these points (ln γ̇ ``x``, ln τ ``y``): the RMS
+    residual of a least-squares parabola in ln γ̇ with its 3 degrees of freedom taken off (a
+    smooth flow curve is close to a parabola over a decade or two in log–log; the residuals
+    are the noise). With five points or fewer, the RMS second difference over √6 instead (the
+    standard deviation of a second difference of independent points of scatter σ is √6·σ)."""
+    if len(x) > 5:
+        residual = y - np.polyval(np.polyfit(x, y, 2), x)
+        return float(np.sqrt(np.sum(residual**2) / (len(x) - 3)))
+    return float(np.sqrt(np.mean(np.diff(y, 2) ** 2) / 6.0))
 
 
 def find_sample_loss(run: Run, context: CheckContext) -> list[Finding]:
@@ -155,13 +232,23 @@ def find_non_monotonic(run: Run, context: CheckContext) -> list[Finding]:
         if loss is not None:
             keep[loss.low:] = False  # reported by sample_loss
     tolerance = float(setting(context, NON_MONOTONIC_SETTINGS, "tolerance"))
-    return [Finding(
-        NON_MONOTONIC_ID, "warning",
-        f"on the {'rising' if d.rising else 'falling'}-rate sweep the stress falls from {num(d.level)} Pa at "
-        f"{num(rate[d.peak])} 1/s to {num(stress[d.low])} Pa at {num(rate[d.low])} 1/s ({percent(d.fraction)} "
-        f"lower, more than the {percent(tolerance)} tolerance), which points to shear banding or wall slip, so a "
-        "model fitted across this range describes the sample only roughly",
-        value=d.fraction, unit="1") for d in stress_decreases(rate, stress, keep, tolerance)]
+    loop = significant_loop(rate, stress, context)
+    broken_down = loop is not None and loop.relative_log_area > 0  # the falling sweep lies below the rising one
+    findings = []
+    for d in stress_decreases(rate, stress, keep, tolerance):
+        fall = (f"on the {'rising' if d.rising else 'falling'}-rate sweep the stress falls from {num(d.level)} Pa at "
+                f"{num(rate[d.peak])} 1/s to {num(stress[d.low])} Pa at {num(rate[d.low])} 1/s ({percent(d.fraction)} "
+                f"lower, more than the {percent(tolerance)} tolerance)")
+        if d.rising and broken_down:
+            cause = (f", and the falling-rate sweep lies below the rising one (relative loop area in log rate "
+                     f"{percent(loop.relative_log_area)}), so the fall is most likely the structure breaking down "
+                     "with time under shear (thixotropy), not shear banding or wall slip; a steady-shear model "
+                     "fitted across this range describes the sample only roughly")
+        else:
+            cause = (", which points to shear banding or wall slip, so a model fitted across this range describes "
+                     "the sample only roughly")
+        findings.append(Finding(NON_MONOTONIC_ID, "warning", fall + cause, value=d.fraction, unit="1"))
+    return findings
 
 
 SAMPLE_LOSS = Check(
@@ -170,7 +257,8 @@ SAMPLE_LOSS = Check(
     severity="warning",
     run=find_sample_loss,
     settings=SAMPLE_LOSS_SETTINGS,
-    reference=("common practice (sudden, lasting stress drop at high rate on cone-plate and parallel plates); "
+    reference=("common practice (sudden, lasting, irreversible stress drop at high rate on cone-plate and parallel "
+               "plates, abrupt against the changes before it); "
                "edge fracture: Tanner & Keentok, J. Rheol. 27 (1983) 47 (from memory)"),
 )
 NON_MONOTONIC = Check(
@@ -180,7 +268,8 @@ NON_MONOTONIC = Check(
     run=find_non_monotonic,
     settings=NON_MONOTONIC_SETTINGS,
     reference=("a decreasing flow curve is mechanically unstable (Yerushalmi, Katz & Shinnar, Chem. Eng. Sci. 25 "
-               "(1970) 1891, from memory): shear banding or wall slip"),
+               "(1970) 1891, from memory): shear banding or wall slip; on the rising sweep of a thixotropic loop, "
+               "structural breakdown with time (Barnes, J. Non-Newtonian Fluid Mech. 70 (1997) 1, from memory)"),
 )
 
 

@@ -16,6 +16,9 @@ import numpy as np
 # (5–20 points per decade); the measured rate of a held step scatters by far less than 2 %
 # (common practice).
 STEP_TOLERANCE = 0.02
+# Points a sweep needs to count as one leg of an up-and-down loop: fewer cannot show a curve
+# (two points are a line), and a two-point "sweep" is more often a wobble of a measured rate.
+MIN_SWEEP_POINTS = 3
 
 
 @dataclass(frozen=True)
@@ -53,6 +56,36 @@ def sweeps(rate: np.ndarray, keep: np.ndarray) -> list[Sweep]:
         direction, held_from = step, k
     found.append(Sweep(direction or 1, index[start:]))
     return found
+
+
+def loop_legs(rate: np.ndarray, keep: np.ndarray) -> list[Sweep]:
+    """The sweeps of at least :data:`MIN_SWEEP_POINTS` points, if both directions are among
+    them (the run goes up and down in rate: a hysteresis loop); otherwise an empty list."""
+    legs = [s for s in sweeps(rate, keep) if len(s.indices) >= MIN_SWEEP_POINTS]
+    return legs if {s.direction for s in legs} == {1, -1} else []
+
+
+def sweep_points(rate: np.ndarray, keep: np.ndarray, which: str) -> np.ndarray:
+    """Boolean mask of the points with ``keep`` that lie on the ``which`` sweeps of a loop.
+
+    ``which`` is ``"all"``, ``"rising"`` or ``"falling"`` (as ``[fit] sweeps``). For a run that
+    goes up and down in rate (:func:`loop_legs`), ``"rising"``/``"falling"`` keep only the points
+    of the sweeps in that direction (the turning point belongs to both); a run measured in one
+    direction, and ``"all"``, keep every point with ``keep``. Why: the two legs of a loop of a
+    thixotropic sample are two structural states, and one model describes only one of them.
+    """
+    keep = np.asarray(keep, dtype=bool)
+    if which not in ("all", "rising", "falling"):
+        raise ValueError(f"sweeps must be 'all', 'rising' or 'falling', not {which!r}")
+    legs = loop_legs(rate, keep) if which != "all" else []
+    if not legs:
+        return keep.copy()
+    direction = 1 if which == "rising" else -1
+    chosen = np.zeros(len(keep), dtype=bool)
+    for leg in legs:
+        if leg.direction == direction:
+            chosen[leg.indices] = True
+    return chosen
 
 
 def _direction(before: float, after: float) -> int:
