@@ -301,8 +301,18 @@ def _specs(entries: Any, registry: "Registry", source: str) -> tuple[SpecRule, .
 
 
 def _limits(table: Mapping[str, Any], source: str) -> dict[str, float]:
+    """``[limits]``: instrument torque and stress limits in SI; each positive, minimum below maximum."""
     _reject_unknown(table, tuple(_LIMIT_KEYS), "[limits] ", source)
-    return {k: _quantity(v, _LIMIT_KEYS[k], f"[limits] {k}", source) for k, v in table.items()}
+    limits = {k: _quantity(v, _LIMIT_KEYS[k], f"[limits] {k}", source) for k, v in table.items()}
+    for key, value in limits.items():
+        if not value > 0:
+            raise StudyConfigError(f"{source}: [limits] {key} must be positive, not {table[key]!r}")
+    for quantity in ("torque", "stress"):
+        low, high = limits.get(f"{quantity}_min"), limits.get(f"{quantity}_max")
+        if low is not None and high is not None and not low < high:
+            raise StudyConfigError(f"{source}: [limits] {quantity}_min ({table[quantity + '_min']!r}) must be below "
+                                   f"{quantity}_max ({table[quantity + '_max']!r})")
+    return limits
 
 
 def dimension_label(dimension: str) -> str:

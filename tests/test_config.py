@@ -92,3 +92,22 @@ def test_errors_name_the_key(tmp_path: Path, registry, change, message) -> None:
 def test_invalid_toml_names_the_file(tmp_path: Path, registry) -> None:
     with pytest.raises(StudyConfigError, match="study.toml: not valid TOML"):
         _load(tmp_path, "[study\ntitle = 1", registry)
+
+
+@pytest.mark.parametrize(("limits", "message"), [
+    ('torque_min = "0.3 N m"\ntorque_max = "0.2 N m"', r"\[limits\] torque_min \('0.3 N m'\) must be below torque_max"),
+    ('stress_min = "2 kPa"\nstress_max = "500 Pa"', r"\[limits\] stress_min \('2 kPa'\) must be below stress_max"),
+    ('stress_min = "-1 Pa"', r"\[limits\] stress_min must be positive"),
+    ('torque_min = "0 N m"', r"\[limits\] torque_min must be positive"),
+    ('stress_min = "50 mPa"\nstress_max = "0.5 kPa"', None),
+])
+def test_limits_are_positive_and_ordered(tmp_path: Path, registry, limits, message) -> None:
+    """[limits]: an instrument range needs 0 < minimum < maximum (a reversed range would exclude
+    every point); the error names the keys with the values as written."""
+    text = f'[study]\ntitle = "limits"\n\n[limits]\n{limits}\n'
+    if message is None:
+        config = _load(tmp_path, text, registry)
+        assert config.limits == pytest.approx({"stress_min": 0.05, "stress_max": 500.0})
+        return
+    with pytest.raises(StudyConfigError, match=message):
+        _load(tmp_path, text, registry)
