@@ -17,6 +17,7 @@ from .derived_results import derived_results
 from .fitting import FitResult, PreparedFit, failed_fit, prepare_fit, profiled, summarise
 from .least_squares import Objective
 from .model_selection import select_model
+from .plugins.rate_sweeps import sweep_points
 from .profile_intervals import with_profile_intervals
 from .records import CheckContext, Conversion, Finding, Result
 from .registry import Provided, Registry
@@ -38,6 +39,7 @@ class RunResult:
     fits: list[FitResult] = field(default_factory=list)
     results: list[Result] = field(default_factory=list)
     geometry: GeometryConfig | None = None
+    fitted: np.ndarray | None = None  # points the fits used (None: every point not excluded)
 
     @property
     def selected(self) -> FitResult | None:
@@ -109,6 +111,8 @@ def run_checks(result: "RunResult", config: StudyConfig, registry: Registry, *, 
     context_fits = tuple(result.fits)
     models = {model_id: p.record for model_id, p in registry.models.items()}
     excluded_before = result.excluded.copy()  # every check of a stage sees the same exclusions
+    if after_fit and result.fitted is not None:
+        excluded_before = ~result.fitted  # after fitting: the points the fits did not use
     for check_id, provided in registry.checks.items():
         if provided.record.after_fit is not after_fit:
             continue
@@ -146,8 +150,29 @@ def objective_of(config: FitConfig) -> Objective:
     return Objective(config.space, config.weights, config.loss, config.loss_scale)
 
 
+def fitted_points(run: Run, excluded: np.ndarray, config: FitConfig) -> np.ndarray:
+    """Boolean mask of the points the fits use: not excluded, and on the ``[fit] sweeps``.
+
+    With ``sweeps = "rising"`` or ``"falling"`` a run that goes up and down in rate is fitted on
+    the points of those sweeps only (``gammadot.plugins.rate_sweeps.sweep_points``): the legs of
+    a thixotropic loop are two structural states. The other points are not excluded (they keep
+    their place in points.parquet and on the site), just not fitted. A run measured in one
+    direction, or ``sweeps = "all"``, is fitted on every point not excluded.
+    """
+    included = ~np.asarray(excluded, dtype=bool)
+    rate = run.columns.get("shear_rate")
+    if config.sweeps == "all" or rate is None:
+        return included
+    with np.errstate(invalid="ignore"):
+        on_curve = included & np.isfinite(rate) & (rate > 0)
+    chosen = sweep_points(rate, on_curve, config.sweeps)
+    # points off every sweep (no usable rate) stay as they were: the fit drops them anyway
+    return np.where(on_curve, chosen, included)
+
+
 def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
-    """Fit every selected model to the run's included points and mark the selected one.
+    """Fit every selected model to the run's fitted points (:func:`fitted_points`) and mark
+    the selected one.
 
     Two passes: every model is fitted, then each fit's parameters are judged (with the
     identifiability profiles for the fits near the run's best AICc: ``fitting.profiled``).
@@ -155,6 +180,7 @@ def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Regis
     model_ids = config.fit.models or tuple(registry.models)
     objective = objective_of(config.fit)
     rate = run.columns.get("shear_rate")
+    excluded = ~fitted_points(run, excluded, config.fit)  # not fitted: excluded, or off the chosen sweeps
     n_points = int((~excluded).sum())
     prepared: list[PreparedFit | FitResult] = []
     for model_id in model_ids:
@@ -179,6 +205,26 @@ def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Regis
     return fits
 
 
+def _note_unfitted_sweeps(result: RunResult, config: FitConfig) -> None:
+    """With ``[fit] sweeps`` other than "all": a run-level note saying which points the fits
+    leave out, and the flag ``fit.sweeps`` on each of them (they are not excluded)."""
+    if result.fitted is None:
+        return
+    left_out = np.flatnonzero(~result.fitted & ~result.excluded)
+    if len(left_out) == 0:
+        return
+    other = "rising" if config.sweeps == "falling" else "falling"
+    rate = result.run.columns["shear_rate"]
+    result.findings.append(Finding(
+        "fit.sweeps", "info",
+        f"[fit] sweeps = \"{config.sweeps}\": the {len(left_out)} points of the {other}-rate sweep "
+        f"(points {left_out[0]}-{left_out[-1]}, {rate[left_out].min():.3g}-{rate[left_out].max():.3g} 1/s) are "
+        f"kept in the tables but not fitted; the fits use the {int(result.fitted.sum())} points of the "
+        f"{config.sweeps}-rate sweep", value=float(len(left_out)), unit="1"))
+    for i in left_out:
+        result.flags[i].append("fit.sweeps")
+
+
 def _guarded(provided: Provided, n_points: int, call: Callable[[], PreparedFit | FitResult]) -> PreparedFit | FitResult:
     """``call()``, or a failed fit naming the model plugin whose code raised."""
     try:
@@ -195,7 +241,8 @@ def run_derived_results(run: Run, excluded: np.ndarray, fits: list[FitResult], c
     if rate is None or viscosity is None:
         return []
     models = {model_id: provided.record for model_id, provided in registry.models.items()}
-    return derived_results(rate[~excluded], viscosity[~excluded], fits, models, config.fit.shear_rates)
+    fitted = fitted_points(run, excluded, config.fit)  # the interpolated values use the fitted points
+    return derived_results(rate[fitted], viscosity[fitted], fits, models, config.fit.shear_rates)
 
 
 def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
@@ -214,6 +261,8 @@ def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
     for note in conversion.notes:  # already among the findings; a point note flags its point
         _flag_point(result, note)
     run_checks(result, config, registry, after_fit=False)
+    result.fitted = fitted_points(run, result.excluded, config.fit)
+    _note_unfitted_sweeps(result, config.fit)
     result.fits = fit_run(run, result.excluded, config, registry)
     try:
         result.results.extend(run_derived_results(run, result.excluded, result.fits, config, registry))
