@@ -1063,6 +1063,9 @@ EXAMPLE_SPECS: tuple[dict[str, Any], ...] = (
      "max": 0.45, "sample": "LT-*"},
     {"name": "paint shear-thinning index eta(1/s)/eta(100/s) (example)", "quantity": "viscosity_ratio",
      "shear_rate": "1 1/s", "shear_rate_2": "100 1/s", "min": 8, "max": 16, "sample": "PT-*"},
+    {"name": "paint viscosity at 100 1/s (example)", "quantity": "viscosity", "method": "model",
+     "shear_rate": "100 1/s", "min": "0.38 Pa*s", "max": "0.52 Pa*s", "sample": "PT-*", "temperature": "20 degC",
+     "temperature_tolerance": "0.5 K"},
     {"name": "hand-cream base yield stress (example)", "quantity": "yield_stress", "min": "20 Pa",
      "sample": "HCB-*"},
     {"name": "joint paste yield stress (example)", "quantity": "yield_stress", "min": "40 Pa", "max": "70 Pa",
@@ -1104,9 +1107,10 @@ def study_toml() -> str:
               "shear_rates = [" + ", ".join(f'"{r}"' for r in REPORTED_SHEAR_RATES) + "]",
               "",
               "# INVENTED EXAMPLE SPECIFICATIONS for the fictitious products: they show how [[spec]] rules",
-              "# work and are not real acceptance limits for any product. A rule has no temperature",
-              "# condition: it applies to every run of the samples its glob matches, so the lotion limits",
-              "# below were set wide enough for runs at 20 to 40 °C."]
+              "# work and are not real acceptance limits for any product. A rule without a temperature",
+              "# applies to every run of the samples its glob matches (the lotion limits below were set",
+              "# wide enough for runs at 20 to 40 °C); the paint viscosity rule with `temperature` judges",
+              "# only the runs recorded within its tolerance of 20 °C."]
     for rule in EXAMPLE_SPECS:
         lines += ["", "[[spec]]"] + [f"{key} = {_toml_value(value)}" for key, value in rule.items()]
     return "\n".join(lines) + "\n"
