@@ -24,6 +24,8 @@ Instrument-value runs (no geometry) are not checked.
 
 from __future__ import annotations
 
+from typing import Callable
+
 import numpy as np
 
 from gammadot.datamodel import Run
@@ -59,58 +61,54 @@ def find_secondary_flow(run: Run, context: CheckContext) -> list[Finding]:
         return []
     density, density_text = sample_density(context)
     keep = usable(speed, viscosity)
+    # ρΩ/η per point (1/m²); 0 where a value is missing, so such points never exceed a limit
+    inertia = np.where(keep, density * speed / np.where(keep, viscosity, 1.0), 0.0)
     if facts.kind == CONCENTRIC_CYLINDER:
-        return _taylor_vortices(facts, speed, viscosity, keep, density, density_text)
-    if facts.kind == CONE_PLATE:
-        limit = float(setting(context, SETTINGS, "cone_plate_limit"))
-        return _cone_plate(facts, speed, viscosity, keep, density, density_text, limit)
-    if facts.kind == PARALLEL_PLATE:
-        limit = float(setting(context, SETTINGS, "parallel_plate_limit"))
-        return _parallel_plate(facts, speed, viscosity, keep, density, density_text, limit)
-    return []
+        criterion = _taylor_vortices(facts, inertia, density_text)
+    elif facts.kind == CONE_PLATE:
+        criterion = _cone_plate(facts, inertia, density_text, float(setting(context, SETTINGS, "cone_plate_limit")))
+    elif facts.kind == PARALLEL_PLATE:
+        criterion = _parallel_plate(facts, inertia, density_text,
+                                    float(setting(context, SETTINGS, "parallel_plate_limit")))
+    else:
+        criterion = None
+    if criterion is None:
+        return []
+    number, limit, explain = criterion
+    return [Finding(CHECK_ID, "warning", explain(float(number[i])), point_index=int(i), exclude=True,
+                    value=float(number[i]), unit="1") for i in np.flatnonzero(number > limit)]
 
 
-def _taylor_vortices(facts: GeometryFacts, speed: np.ndarray, viscosity: np.ndarray, keep: np.ndarray,
-                     density: float, density_text: str) -> list[Finding]:
+# A geometry's criterion: the dimensionless number per point, its limit, and the sentence for a
+# point above the limit (given the point's number).
+Criterion = tuple[np.ndarray, float, Callable[[float], str]]
+
+
+def _taylor_vortices(facts: GeometryFacts, inertia: np.ndarray, density_text: str) -> Criterion | None:
     if facts.rotating != "inner" or facts.outer_radius is None:
-        return []  # outer cylinder turning: centrifugally stable (Rayleigh), no vortices
+        return None  # outer cylinder turning: centrifugally stable (Rayleigh), no vortices
     ratio = facts.radius / facts.outer_radius
     limit = critical_reynolds(ratio)
     note = "" if ratio >= SMALLEST_TABULATED_RATIO else f", the value at {SMALLEST_TABULATED_RATIO} as an estimate"
-    reynolds = np.where(keep, density * speed * facts.radius * facts.gap / np.where(keep, viscosity, 1.0), 0.0)
-    return [Finding(
-        CHECK_ID, "warning",
-        f"Reynolds number ρΩR_i·d/η = {num(reynolds[i])} is above {num(limit, 4)}, where Taylor vortices start "
+    return inertia * facts.radius * facts.gap, limit, lambda reynolds: (
+        f"Reynolds number ρΩR_i·d/η = {num(reynolds)} is above {num(limit, 4)}, where Taylor vortices start "
         f"between cylinders of radius ratio {num(ratio, 4)} turning on the inside ({density_text}{note}), so the "
-        "torque overstates the viscosity and the point is left out of the fit",
-        point_index=int(i), exclude=True, value=float(reynolds[i]), unit="1")
-        for i in np.flatnonzero(reynolds > limit)]
+        "torque overstates the viscosity and the point is left out of the fit")
 
 
-def _cone_plate(facts: GeometryFacts, speed: np.ndarray, viscosity: np.ndarray, keep: np.ndarray,
-                density: float, density_text: str, limit: float) -> list[Finding]:
+def _cone_plate(facts: GeometryFacts, inertia: np.ndarray, density_text: str, limit: float) -> Criterion:
     angle = facts.cone_angle or 0.0
-    parameter = np.where(keep, density * speed * angle**2 * facts.radius**2
-                         / (12.0 * np.where(keep, viscosity, 1.0)), 0.0)
-    return [Finding(
-        CHECK_ID, "warning",
-        f"secondary-flow parameter ρΩα²R²/(12η) = {num(parameter[i])} at the cone rim is above {num(limit)} "
+    return inertia * angle**2 * facts.radius**2 / 12.0, limit, lambda parameter: (
+        f"secondary-flow parameter ρΩα²R²/(12η) = {num(parameter)} at the cone rim is above {num(limit)} "
         f"({density_text}), so inertia drives a secondary flow that raises the torque and the point is left "
-        "out of the fit",
-        point_index=int(i), exclude=True, value=float(parameter[i]), unit="1")
-        for i in np.flatnonzero(parameter > limit)]
+        "out of the fit")
 
 
-def _parallel_plate(facts: GeometryFacts, speed: np.ndarray, viscosity: np.ndarray, keep: np.ndarray,
-                    density: float, density_text: str, limit: float) -> list[Finding]:
-    reynolds = np.where(keep, density * speed * facts.gap**2 / np.where(keep, viscosity, 1.0), 0.0)
-    return [Finding(
-        CHECK_ID, "warning",
-        f"Reynolds number ρΩh²/η = {num(reynolds[i])} is above {num(limit)} ({density_text}), so inertia adds "
-        f"about {percent(TURNING_PLATE_COEFFICIENT * reynolds[i] ** 2)} to the turning plate's stress, drives a "
-        "secondary flow, and the point is left out of the fit",
-        point_index=int(i), exclude=True, value=float(reynolds[i]), unit="1")
-        for i in np.flatnonzero(reynolds > limit)]
+def _parallel_plate(facts: GeometryFacts, inertia: np.ndarray, density_text: str, limit: float) -> Criterion:
+    return inertia * facts.gap**2, limit, lambda reynolds: (
+        f"Reynolds number ρΩh²/η = {num(reynolds)} is above {num(limit)} ({density_text}), so inertia adds "
+        f"about {percent(TURNING_PLATE_COEFFICIENT * reynolds ** 2)} to the turning plate's stress, drives a "
+        "secondary flow, and the point is left out of the fit")
 
 
 SECONDARY_FLOW = Check(
