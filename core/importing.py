@@ -11,6 +11,7 @@ import hashlib
 import re
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Sequence
 
 from .columns import build_run
 from .config import StudyConfig
@@ -56,6 +57,16 @@ def sha256_of(data: bytes) -> str:
 def slug(text: str) -> str:
     """A lower-case, URL- and file-safe form of ``text``."""
     return re.sub(r"[^a-z0-9]+", "-", text.lower()).strip("-") or "run"
+
+
+def number_repeated_run_ids(runs: Sequence[Run]) -> None:
+    """Two paths can slug alike ("a b.csv", "a-b.csv"): number the repeats ``-2``, ``-3`` …
+    in file order, so every run id of a study is unique (in place)."""
+    seen: dict[str, int] = {}
+    for run in runs:
+        seen[run.run_id] = seen.get(run.run_id, 0) + 1
+        if seen[run.run_id] > 1:
+            run.run_id = f"{run.run_id}-{seen[run.run_id]}"
 
 
 def choose_importer(registry: Registry, path: Path, head: bytes) -> tuple[Provided | None, list[str]]:

@@ -13,7 +13,7 @@ from typing import TYPE_CHECKING, Callable, Protocol, Sequence
 
 from .config import StudyConfig, load_study_config
 from .discovery import find_input_files
-from .importing import FileOutcome, RejectedFile, import_file
+from .importing import FileOutcome, RejectedFile, import_file, number_repeated_run_ids
 from .processing import RunResult, process_run
 from .records import AnalysisOutput, Finding
 from .registry import Registry
@@ -104,7 +104,7 @@ def process_study(study_dir: Path, registry: Registry, *, out_dir: Path | None =
         result.files.append(outcome)
         result.runs.extend(processed)
         progress.advance(rel)
-    _dedupe_run_ids(result.runs)
+    number_repeated_run_ids([r.run for r in result.runs])
     run_analyses(result)
     result.specs = [v for run in result.runs for v in evaluate_specs(run, config.specs)]
     return result
@@ -132,16 +132,6 @@ def run_analyses(result: StudyResult) -> None:
 
 def _as_findings(findings: object) -> list[Finding]:
     return [f for f in findings if isinstance(f, Finding)]  # type: ignore[attr-defined]
-
-
-def _dedupe_run_ids(runs: list[RunResult]) -> None:
-    """Two paths can slug alike ("a b.csv", "a-b.csv"): number repeats, keeping file order."""
-    seen: dict[str, int] = {}
-    for result in runs:
-        run_id = result.run.run_id
-        seen[run_id] = seen.get(run_id, 0) + 1
-        if seen[run_id] > 1:
-            result.run.run_id = f"{run_id}-{seen[run_id]}"
 
 
 def write_outputs(result: StudyResult, out_dir: Path,

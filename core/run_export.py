@@ -11,13 +11,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import Path
-from types import SimpleNamespace
 
 from .config import load_study_config
 from .datamodel import Run
 from .discovery import find_input_files
-from .importing import import_file
-from .pipeline import _dedupe_run_ids, default_out_dir
+from .importing import import_file, number_repeated_run_ids
+from .pipeline import default_out_dir
 from .registry import Registry
 
 
@@ -40,8 +39,7 @@ def imported_runs(study: Path, registry: Registry) -> list[Run]:
     runs: list[Run] = []
     for path in find_input_files(study, default_out_dir(study), suffixes):
         runs.extend(import_file(path, path.relative_to(study).as_posix(), registry, config).runs)
-    holders = [SimpleNamespace(run=run) for run in runs]  # the pipeline numbers repeats on results
-    _dedupe_run_ids(holders)  # type: ignore[arg-type]
+    number_repeated_run_ids(runs)  # as the pipeline does
     return runs
 
 
