@@ -177,7 +177,8 @@ def find_sample_loss(run: Run, context: CheckContext) -> list[Finding]:
         SAMPLE_LOSS_ID, "warning",
         f"the stress fell suddenly from {num(loss.level)} Pa at {num(rate[loss.peak])} 1/s to "
         f"{num(stress[loss.low])} Pa at {num(rate[loss.low])} 1/s ({percent(loss.fraction)} lower although the "
-        "rate rose), so sample has probably been thrown out of the gap or its edge has fractured: this point "
+        "rate rose; at the high-rate end, in one step and without coming back, unlike noise or a gradual "
+        "breakdown), so sample has probably been thrown out of the gap or its edge has fractured: this point "
         "and every later one are left out of the fit",
         point_index=loss.low, exclude=True, value=loss.fraction, unit="1")
     later = [Finding(

@@ -253,6 +253,18 @@ def test_a_falling_rising_sweep_of_a_thixotropic_loop_is_blamed_on_breakdown_not
     assert "not shear banding or wall slip" in finding.message
 
 
+def test_a_falling_rising_sweep_below_its_falling_sweep_keeps_the_banding_wording() -> None:
+    # anti-thixotropic loop (down leg 30 % above the up leg): the rising sweep's fall is not a breakdown
+    up = np.geomspace(0.5, 500.0, 31)
+    rate = np.concatenate([up, up[-2::-1]])
+    stress = _banding_curve(rate) * np.where(np.arange(rate.size) > 30, 1.3, 1.0)
+    assert loop_area(rate, stress).relative_log_area < -0.10
+    findings = find_non_monotonic(make_run(flow_columns(rate, stress)),
+                                  context_for("non_monotonic", NON_MONOTONIC_SETTINGS))
+    rising = [f for f in findings if f.message.startswith("on the rising-rate sweep")]
+    assert len(rising) == 1 and "points to shear banding or wall slip" in rising[0].message
+
+
 def test_a_banding_curve_measured_up_and_down_without_a_loop_keeps_the_banding_wording() -> None:
     up = np.geomspace(0.5, 500.0, 31)
     rate = np.concatenate([up, up[-2::-1]])
