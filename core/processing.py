@@ -42,6 +42,13 @@ class RunResult:
     fitted: np.ndarray | None = None  # points the fits used (None: every point not excluded)
 
     @property
+    def in_fit(self) -> np.ndarray:
+        """One bool per point: true where the fits used the point (the fitted points; before
+        fitting, or without a sweep choice, every point not excluded). Plots, replicates and
+        slip analyses use this, so a leg left out by ``[fit] sweeps`` counts as not fitted."""
+        return self.fitted.copy() if self.fitted is not None else ~np.asarray(self.excluded, dtype=bool)
+
+    @property
     def selected(self) -> FitResult | None:
         """The selected model's fit, if any model could be fitted."""
         return next((f for f in self.fits if f.selected), None)

@@ -71,7 +71,7 @@ def curve_of(run_result: Any) -> Curve | None:
     rate, viscosity = run.columns.get("shear_rate"), run.columns.get("viscosity")
     if run.sample is None or rate is None or viscosity is None:
         return None
-    keep = usable(rate, viscosity) & ~np.asarray(run_result.excluded, dtype=bool)
+    keep = usable(rate, viscosity) & run_result.in_fit
     found = sweeps(rate, keep)
     if not found:
         return None

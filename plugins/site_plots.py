@@ -90,14 +90,16 @@ def positive(values: np.ndarray | None, n: int) -> np.ndarray:
 
 
 def flag_notes(rr: Any, index: np.ndarray) -> list[str] | None:
-    """Per point: " · excluded from fits (check ids)"; ``None`` when no point has a flag."""
-    if not rr.excluded.any() and not any(rr.flags):
+    """Per point: " · excluded from fits" or " · not fitted" (a sweep ``[fit] sweeps`` leaves
+    out) and the flags; ``None`` when no point has a note."""
+    in_fit = rr.in_fit
+    if in_fit.all() and not any(rr.flags):
         return None
     notes = []
     any_note = False
     for i in index.tolist():
         flags = sorted(set(rr.flags[i])) if i < len(rr.flags) else []
-        state = " · excluded from fits" if rr.excluded[i] else ""
+        state = " · excluded from fits" if rr.excluded[i] else (" · not fitted" if not in_fit[i] else "")
         note = state + (f" · flagged by {', '.join(flags)}" if flags else "")
         any_note = any_note or bool(note)
         notes.append(plot_text(note))
@@ -147,7 +149,7 @@ def flow_curve_overlay(runs: Sequence[Any], *, by: str = "sample") -> dict[str, 
         if rate is None or viscosity is None:
             continue
         n = len(rate)
-        excluded = np.asarray(rr.excluded, dtype=bool)
+        excluded = ~rr.in_fit  # hollow grey: excluded by a check, or on a sweep the fits leave out
         number = groups[rr.run.sample] if by == "sample" else k
         colour = PALETTE[number % len(PALETTE)]
         dash = DASHES[(number // len(PALETTE)) % len(DASHES)]
@@ -279,10 +281,11 @@ def shown_models(fits: Sequence[Any], count: int = SHOWN_MODELS) -> set[str]:
 
 
 def _points_traces(rr: Any, x: np.ndarray, y: np.ndarray, symbol: str, unit: str) -> list[dict[str, Any]]:
-    excluded = np.asarray(rr.excluded, dtype=bool)
+    excluded = ~rr.in_fit
     traces = []
-    for name, mask, style in (("Measured, used in fits", ~excluded, "included"),
-                              ("Measured, excluded from fits", excluded, "excluded")):
+    left_out = ("Measured, excluded from fits" if np.array_equal(excluded, np.asarray(rr.excluded, dtype=bool))
+                else "Measured, not used in fits")
+    for name, mask, style in (("Measured, used in fits", ~excluded, "included"), (left_out, excluded, "excluded")):
         index = np.flatnonzero(mask)
         if not len(index):
             continue
@@ -378,7 +381,7 @@ def residual_figure(rr: Any, registry: Any) -> dict[str, Any] | None:
         return None
     n = len(rate)
     x = positive(rate, n)
-    excluded = np.asarray(rr.excluded, dtype=bool)
+    excluded = ~rr.in_fit
     traces: list[dict[str, Any]] = []
     styles = fit_styles(rr.fits)
     ordered = sorted((f for f in rr.fits if f.success and f.best_fit), key=lambda f: not f.selected)

@@ -76,7 +76,7 @@ def _curve(rr: Any) -> _Curve | None:
     if gap is None or rate is None or stress is None:
         return None
     with np.errstate(invalid="ignore"):
-        keep = ~np.asarray(rr.excluded, dtype=bool) & np.isfinite(rate) & np.isfinite(stress) & (rate > 0) & (stress > 0)
+        keep = rr.in_fit & np.isfinite(rate) & np.isfinite(stress) & (rate > 0) & (stress > 0)
     if keep.sum() < 2:
         return None
     order = np.argsort(stress[keep], kind="stable")

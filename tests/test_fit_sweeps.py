@@ -167,3 +167,7 @@ def test_a_thixotropic_loop_fitted_on_its_falling_sweep(gammadot_study) -> None:
     assert [i for i, p in enumerate(points) if "fit.sweeps" in p["flags"]] == list(range(12))
     page = out.run_page(out.table("runs")[0]["run_id"])
     assert all(f'id="point-{i}"' in page for i in range(25))  # every point is on the run page
+    # the rising leg is drawn hollow as "not used in fits", not among the fitted points
+    assert "Measured, not used in fits" in page and "not fitted" in page
+    assert "Measured, not used in fits" not in _paint_study(gammadot_study, "all").run_page(
+        out.table("runs")[0]["run_id"])
