@@ -425,7 +425,7 @@ def results_view(rr: Any) -> list[dict[str, Any]]:
         if r.at_shear_rate is not None:
             note = f"at {fmt(r.at_shear_rate)} 1/s" + ("" if not note else f"; {note}")
         views.append({"name": r.name, "value": value, "unit": fmt_unit(r.unit), "method": r.method, "note": note,
-                      "extrapolated": bool(r.extrapolated)})
+                      "extrapolated": bool(r.extrapolated) and value != "n/a"})  # no mark on a missing value
     return views
 
 

@@ -680,3 +680,19 @@ def test_profile_intervals_are_shown_when_the_fit_has_them(built) -> None:
     for view, p in zip(views, fit.parameters):
         assert view["interval"] == f"{study_site.fmt(p.value * 0.9)} to {study_site.fmt(p.value * 1.1)}"
     assert all(v["interval"] == "" for v in site_pages.parameters_view(fit, result.registry))
+
+
+def test_a_missing_result_carries_no_extrapolation_mark() -> None:
+    """A zero-shear viscosity the selected model cannot give (a power law has no plateau) is shown
+    as n/a without the 'extrapolated' mark; a model limit that has a value keeps the mark."""
+    from types import SimpleNamespace
+
+    from gammadot.records import Result
+
+    missing = Result("zero_shear_viscosity", None, "Pa·s", method="selected model power_law", at_shear_rate=0.0,
+                     extrapolated=True, note="the selected model has no zero-shear plateau")
+    limit = Result("zero_shear_viscosity", 9.6, "Pa·s", stderr=0.16, method="selected model cross, parameter eta0",
+                   at_shear_rate=0.0, extrapolated=True)
+    views = site_pages.results_view(SimpleNamespace(results=[missing, limit]))
+    assert [(v["value"], v["extrapolated"]) for v in views] == [("n/a", False), (views[1]["value"], True)]
+    assert views[1]["value"] != "n/a"
