@@ -1,4 +1,4 @@
-"""Synthetic flow curves for the recovery and selection tests (test data only, never the demo).
+"""Synthetic flow curves for the recovery, selection and check tests (test data only, never the demo).
 
 Each generator maps numbers u ∈ [0, 1] to a parameter set of one model, chosen so that every
 parameter is visible in the measured range (a plateau the curve reaches, a yield stress that
@@ -99,3 +99,24 @@ def expected_stderr(model, params: dict[str, float], noise: float, rates: np.nda
     parts = model.jacobian(rates, **params)
     J = np.column_stack([np.broadcast_to(parts[n], rates.shape) / f for n in names])
     return noise * np.sqrt(np.diag(np.linalg.inv(J.T @ J)))
+
+
+def moore_loop(points: int, build_rate: float, seed: int, noise: float = 0.015) -> tuple[np.ndarray, np.ndarray]:
+    """A rested thixotropic gel paint taken up from 0.1 to 500 1/s and back through the same steps.
+
+    Moore-type structure kinetics, ds/dt = k[(1 − s) − (λγ̇)^m·s] (s = 1 rested, 0 broken down),
+    solved exactly on each step of constant rate: s(t) = s_e + (s₀ − s_e)exp(−k(1 + (λγ̇)^m)t),
+    s_e = 1/(1 + (λγ̇)^m); at fixed s the paint is Newtonian with η = η∞ + (η0 − η∞)s (its steady
+    state is the Cross model). Invented Merrowind gel paint: η0 = 20 Pa·s, η∞ = 0.08 Pa·s, λ = 0.5 s,
+    m = 0.9; steps of 8 + 30/(1 + γ̇) s; 1.5 % torque noise (seeded). Stress in Pa.
+    """
+    up = np.geomspace(0.1, 500.0, points)
+    rate = np.concatenate([up, up[-2::-1]])
+    structure, s = [], 1.0
+    for g, duration in zip(rate, 8.0 + 30.0 / (1.0 + rate)):
+        breakdown = (0.5 * g) ** 0.9
+        steady = 1.0 / (1.0 + breakdown)
+        s = steady + (s - steady) * math.exp(-build_rate * (1.0 + breakdown) * duration)
+        structure.append(s)
+    viscosity = 0.08 + (20.0 - 0.08) * np.array(structure)
+    return rate, viscosity * rate * (1 + noise * np.random.default_rng(seed).standard_normal(rate.size))

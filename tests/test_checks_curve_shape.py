@@ -26,6 +26,7 @@ from gammadot.plugins.checks_thixotropy import SETTINGS as LOOP_SETTINGS
 from gammadot.plugins.checks_thixotropy import find_hysteresis_loop, loop_area
 from gammadot.records import CheckContext
 
+from flow_curves import moore_loop
 from check_helpers import (concentric_cylinder, cone_plate, context_for, excluded, flow_columns, make_run,
                            parallel_plate)
 
@@ -148,33 +149,12 @@ def test_a_rim_loss_after_a_noisy_start_is_still_found(seed: int) -> None:
     assert excluded(findings) == list(range(20, 25))
 
 
-def _moore_loop(points: int, build_rate: float, seed: int, noise: float = 0.015) -> tuple[np.ndarray, np.ndarray]:
-    """A rested thixotropic gel paint taken up from 0.1 to 500 1/s and back through the same steps.
-
-    Moore-type structure kinetics, ds/dt = k[(1 − s) − (λγ̇)^m·s] (s = 1 rested, 0 broken down),
-    solved exactly on each step of constant rate: s(t) = s_e + (s₀ − s_e)exp(−k(1 + (λγ̇)^m)t),
-    s_e = 1/(1 + (λγ̇)^m); at fixed s the paint is Newtonian with η = η∞ + (η0 − η∞)s (its steady
-    state is the Cross model). Invented Merrowind gel paint: η0 = 20 Pa·s, η∞ = 0.08 Pa·s, λ = 0.5 s,
-    m = 0.9; steps of 8 + 30/(1 + γ̇) s; 1.5 % torque noise (seeded). Stress in Pa.
-    """
-    up = np.geomspace(0.1, 500.0, points)
-    rate = np.concatenate([up, up[-2::-1]])
-    structure, s = [], 1.0
-    for g, duration in zip(rate, 8.0 + 30.0 / (1.0 + rate)):
-        breakdown = (0.5 * g) ** 0.9
-        steady = 1.0 / (1.0 + breakdown)
-        s = steady + (s - steady) * math.exp(-build_rate * (1.0 + breakdown) * duration)
-        structure.append(s)
-    viscosity = 0.08 + (20.0 - 0.08) * np.array(structure)
-    return rate, viscosity * rate * (1 + noise * np.random.default_rng(seed).standard_normal(rate.size))
-
-
 @pytest.mark.parametrize("points", [9, 13, 17, 25])
 @pytest.mark.parametrize("build_rate", [0.001, 0.003, 0.01, 0.03])
 def test_structure_breaking_down_on_the_rising_sweep_of_a_loop_is_not_sample_loss(points: int,
                                                                                    build_rate: float) -> None:
     for seed in range(3):
-        rate, stress = _moore_loop(points, build_rate, seed)
+        rate, stress = moore_loop(points, build_rate, seed)
         assert loop_area(rate, stress).relative_log_area > 0  # down below up: structure was lost
         findings = find_sample_loss(make_run(flow_columns(rate, stress)), _loss_context(cone_plate()))
         assert excluded(findings) == [], (points, build_rate, seed)
@@ -182,7 +162,7 @@ def test_structure_breaking_down_on_the_rising_sweep_of_a_loop_is_not_sample_los
 
 def test_the_paint_loop_has_the_signature_the_old_criterion_took_for_a_loss() -> None:
     # the reproduction: 13 points up, 12 down; the rising sweep falls by far more than 10 % in one step
-    rate, stress = _moore_loop(13, 0.003, 0)
+    rate, stress = moore_loop(13, 0.003, 0)
     assert _bare_drop(stress[:13])
     assert find_sample_loss(make_run(flow_columns(rate, stress)), _loss_context(cone_plate())) == []
 
@@ -245,7 +225,7 @@ def test_a_flow_curve_falling_with_rate_is_reported_over_the_falling_range() -> 
 
 def test_a_falling_rising_sweep_of_a_thixotropic_loop_is_blamed_on_breakdown_not_banding() -> None:
     # the paint loop: the rising sweep passes a maximum and falls; the falling sweep lies far below
-    rate, stress = _moore_loop(13, 0.003, 0)
+    rate, stress = moore_loop(13, 0.003, 0)
     context = context_for("non_monotonic", NON_MONOTONIC_SETTINGS, geometry=cone_plate())
     (finding,) = find_non_monotonic(make_run(flow_columns(rate, stress)), context)
     assert finding.message.startswith("on the rising-rate sweep")

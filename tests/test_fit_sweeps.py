@@ -20,6 +20,8 @@ from gammadot.datamodel import Run
 from gammadot.plugins.rate_sweeps import sweep_points
 from gammadot.processing import fit_run, fitted_points, process_run, run_derived_results
 
+from flow_curves import moore_loop
+
 UP = np.geomspace(1.0, 100.0, 15)
 K_UP, K_DOWN, N = 12.0, 8.0, 0.5  # Pa·sⁿ, Pa·sⁿ, 1
 
@@ -118,20 +120,11 @@ sweeps = "{sweeps}"
 
 
 def _paint_loop(points: int = 13, seed: int = 0) -> tuple[np.ndarray, np.ndarray]:
-    """Merrowind's (invented) gel paint taken up from 0.1 to 500 1/s from rest and back: speed Ω (rad/s)
-    and torque M (N·m). Moore-type kinetics ds/dt = k[(1 − s) − (λγ̇)^m·s], exact on each step of
-    constant rate; η = η∞ + (η0 − η∞)s with η0 = 20 Pa·s, η∞ = 0.08 Pa·s, λ = 0.5 s, m = 0.9,
-    k = 0.003 1/s; steps of 8 + 30/(1 + γ̇) s; 1.5 % torque noise; γ̇ = Ω/α, M = 2πR³τ/3."""
-    up = np.geomspace(0.1, 500.0, points)
-    rate = np.concatenate([up, up[-2::-1]])
-    structure, s = [], 1.0
-    for g, duration in zip(rate, 8.0 + 30.0 / (1.0 + rate)):
-        breakdown = (0.5 * g) ** 0.9
-        steady = 1.0 / (1.0 + breakdown)
-        s = steady + (s - steady) * math.exp(-0.003 * (1.0 + breakdown) * duration)
-        structure.append(s)
-    stress = (0.08 + (20.0 - 0.08) * np.array(structure)) * rate
-    torque = 2 * math.pi * RADIUS**3 * stress / 3 * (1 + 0.015 * np.random.default_rng(seed).standard_normal(rate.size))
+    """Merrowind's (invented) gel paint taken up from 0.1 to 500 1/s from rest and back
+    (:func:`flow_curves.moore_loop`, k = 0.003 1/s) as speed Ω (rad/s) and torque M (N·m) on the
+    study's cone: γ̇ = Ω/α, M = 2πR³τ/3."""
+    rate, stress = moore_loop(points, 0.003, seed)  # the stress carries the 1.5 % noise, as the torque would
+    torque = 2 * math.pi * RADIUS**3 * stress / 3
     return rate * CONE_ANGLE, torque
 
 
