@@ -74,7 +74,8 @@ def resolve_geometry(run: Run, config: StudyConfig) -> tuple[GeometryConfig | No
 
 def convert(run: Run, config: StudyConfig,
             registry: Registry) -> tuple[Conversion | None, GeometryConfig | None, list[Finding]]:
-    """Apply the run's geometry, falling back to the instrument's own values."""
+    """Apply the run's geometry, falling back to the instrument's own values; the geometry
+    returned is the one the run names even when its values are the instrument's (for checks)."""
     geometry, notes = resolve_geometry(run, config)
     attempts: list[tuple[Provided, GeometryConfig | None]] = []
     if geometry is not None and geometry.type in registry.geometries:
@@ -90,7 +91,9 @@ def convert(run: Run, config: StudyConfig,
                                  f"{type(exc).__name__}: {exc}"))
             continue
         if result is not None:
-            return result, geo, notes + list(result.notes)
+            # Instrument values (the pass-through) keep the geometry the run names: the checks
+            # still need it (torque from the stress, speed from the rate, inertia criteria).
+            return result, geo if geo is not None else geometry, notes + list(result.notes)
     notes.append(Finding("geometry.none", "error",
                          "no shear rate and shear stress could be obtained: the run needs instrument "
                          "shear rate with stress or viscosity, or torque and speed with a geometry"))
