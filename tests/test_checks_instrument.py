@@ -177,3 +177,35 @@ def test_stress_limits_from_study_toml_exclude_points_through_the_pipeline(tmp_p
     (run,) = process_study(tmp_path, registry).runs
     assert [bool(x) for x in run.excluded] == list(stress < 0.15)  # 0.05 Pa and 0.134 Pa out
     assert int(run.excluded.sum()) == 2 and all("torque_range" in run.flags[i] for i in (0, 1))
+
+
+def test_instrument_values_that_name_their_geometry_are_checked_against_the_torque(tmp_path, registry) -> None:
+    """An export of instrument-computed stress and rate that names its cone (50 mm, 1°): the
+    values are used as exported, but the torque behind each point is recovered from the
+    stress, M = 2πR³τ/3 (small-angle cone-plate, Macosko, Rheology 1994, ch. 5), and points
+    below [limits] torque_min are excluded; the same export without the geometry line gets
+    only the note that the torque range was not checked."""
+    from gammadot.pipeline import process_study
+
+    from support import write_export
+
+    radius = 0.025
+    rate = np.geomspace(0.3, 1000.0, 8)
+    stress = 0.05 * rate  # Newtonian 50 mPa·s: 0.015 Pa at the lowest rate → M = 0.49 µN·m
+    torque = 2 * np.pi * radius**3 * stress / 3
+    rows = [[g, t] for g, t in zip(rate, stress)]
+    header = ["Shear rate [1/s]", "Shear stress [Pa]"]
+    (tmp_path / "study.toml").write_text(
+        '[geometries.cone50]\ntype = "cone_plate"\nradius = "25 mm"\ncone_angle = "1 deg"\n\n'
+        '[limits]\ntorque_min = "1.6 uN*m"\n', encoding="utf-8")
+    write_export(tmp_path / "named.csv", {"sample": "MW-CO-0412", "geometry": "cone50"}, header, rows)
+    write_export(tmp_path / "unnamed.csv", {"sample": "MW-CO-0412"}, header, rows)
+    runs = {r.run.source_file: r for r in process_study(tmp_path, registry).runs}
+    named, unnamed = runs["named.csv"], runs["unnamed.csv"]
+    assert named.correction in (None, "none")  # the instrument's values are kept as exported
+    assert [bool(x) for x in named.excluded] == list(torque < 1.6e-6)
+    assert 1 <= int(named.excluded.sum()) < len(rate)
+    messages = [f.message for f in named.findings if f.check == "torque_range"]
+    assert any("from the stress and the geometry" in m for m in messages)
+    assert not unnamed.excluded.any()
+    assert any("not checked" in f.message for f in unnamed.findings if f.check == "torque_range")
