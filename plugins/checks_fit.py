@@ -1,13 +1,22 @@
 """Built-in after-fit check ``fit_residuals``: residuals of the selected model that follow a
 pattern instead of scattering at random.
 
-A model that describes the data leaves residuals whose signs, ordered by shear rate, alternate
-like coin tosses; a model that misses the curve's shape leaves long stretches above and below.
+A model that describes the data leaves residuals that, ordered by shear rate, scatter like
+independent draws; a model that misses the curve's shape leaves long stretches above and below.
 The residuals are those the fit minimised, r = ln f(γ̇) − ln y, over the points that were
-fitted; their signs go through the runs test (:mod:`gammadot.plugins.runs_test`, Wald &
-Wolfowitz 1940). When too few runs are seen for random order at the significance level
-``alpha`` (default 1 %, so that about one run in a hundred with an adequate model is flagged —
-common practice: 1–5 %), a run-level warning says so with the numbers. Points are not touched.
+fitted, and two tests look at them:
+
+- the runs test on their signs (:mod:`gammadot.plugins.runs_test`, Wald & Wolfowitz 1940):
+  too few runs of one sign;
+- the von Neumann ratio of successive differences, by permutation
+  (:mod:`gammadot.plugins.serial_correlation`): neighbours that resemble each other. It uses
+  the residuals' sizes, so it also sees a smooth misfit of a short curve (12–16 points), where
+  runs of signs are too short to be significant.
+
+Each test runs at ``alpha``/2 (Bonferroni), so that with an adequate model about ``alpha`` of
+the runs (default 1 %: common practice, 1–5 %) are flagged by either. A flagged run gets one
+run-level warning with the numbers of the test(s) that fired; ``value`` is the smaller p-value.
+Points are not touched.
 """
 
 from __future__ import annotations
@@ -20,12 +29,14 @@ from gammadot.records import Check, CheckContext, CheckSetting, Finding
 
 from .check_inputs import num, setting, usable
 from .runs_test import runs_test
+from .serial_correlation import von_neumann_test
 
 CHECK_ID = "fit_residuals"
 
 SETTINGS = (
     CheckSetting("alpha", "dimensionless", 0.01,
-                 "significance level of the runs test on the selected model's residual signs", minimum=0.0),
+                 "significance level of the two residual tests together (runs of signs, serial correlation; "
+                 "each at alpha/2)", minimum=0.0),
 )
 
 
@@ -49,22 +60,31 @@ def log_residuals(run: Run, context: CheckContext) -> tuple[str, np.ndarray] | N
 
 
 def find_structured_residuals(run: Run, context: CheckContext) -> list[Finding]:
-    """A run-level warning when the selected model's residual signs come in too few runs."""
+    """A run-level warning when the selected model's residuals, ordered by shear rate, come in
+    too few runs of one sign or are serially correlated (module docstring)."""
     found = log_residuals(run, context)
     if found is None:
         return []
     model_id, residual = found
-    result = runs_test(residual)
     alpha = float(setting(context, SETTINGS, "alpha"))
-    if result.p_value >= alpha:
+    level = alpha / 2.0  # Bonferroni over the two tests
+    runs, serial = runs_test(residual), von_neumann_test(residual)
+    reasons = []
+    if runs.p_value < level:
+        reasons.append(f"their signs come in {runs.runs} runs where about {num(runs.expected, 3)} are expected for "
+                       f"random scatter (runs test, p = {num(runs.p_value, 2)})")
+    if serial.p_value < level:
+        reasons.append(f"neighbouring residuals move together: the ratio of successive differences is "
+                       f"{num(serial.ratio, 3)} where about 2 is expected for random scatter (von Neumann ratio, "
+                       f"permutation p = {num(serial.p_value, 2)})")
+    if not reasons:
         return []
     return [Finding(
         CHECK_ID, "warning",
-        f"the residuals of the selected model {model_id} ({len(residual)} points ordered by shear rate) come in "
-        f"{result.runs} runs of one sign where about {num(result.expected, 3)} are expected for random scatter "
-        f"(runs test, p = {num(result.p_value, 2)} < {num(alpha, 2)}), so the model misses a systematic trend "
-        "and its parameters describe the curve only roughly",
-        value=result.p_value, unit="1")]
+        f"the residuals of the selected model {model_id} ({len(residual)} points ordered by shear rate) follow a "
+        f"pattern: {'; and '.join(reasons)}, each test at {num(level, 2)} (= alpha/2), so the model misses a "
+        "systematic trend and its parameters describe the curve only roughly",
+        value=min(runs.p_value, serial.p_value), unit="1")]
 
 
 FIT_RESIDUALS = Check(
@@ -75,7 +95,8 @@ FIT_RESIDUALS = Check(
     after_fit=True,
     settings=SETTINGS,
     reference=("runs test on residual signs: Wald & Wolfowitz, Ann. Math. Statist. 11 (1940) 147, "
-               "doi:10.1214/aoms/1177731909 (from memory)"),
+               "doi:10.1214/aoms/1177731909 (from memory); von Neumann ratio of successive differences, "
+               "Ann. Math. Statist. 12 (1941) 367 (from memory), tested by permutation"),
 )
 
 
