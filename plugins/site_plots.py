@@ -133,10 +133,11 @@ def flow_curve_overlay(runs: Sequence[Any], *, by: str = "sample") -> dict[str, 
     """Flow curves of several runs, one trace per run, with a viscosity and a stress view.
 
     ``by="sample"`` colours by sample (overview), ``by="run"`` gives each run its own colour
-    (a sample's page). Excluded points are hollow grey markers on the run's own trace. In a
-    large study (more than ``DENSE_POINTS`` points) the runs are drawn as lines, which a
-    browser draws many times faster than thousands of markers, and each run with excluded
-    points gets a companion trace of hollow grey markers for them.
+    (a sample's page). A run's trace holds the points its fits used; the points left out (by a
+    check, or on a sweep ``[fit] sweeps`` does not fit) are hollow grey markers on a companion
+    trace of the run, off its line: a line through noisy points left out of the fits would hide
+    the curve the fits used. In a large study (more than ``DENSE_POINTS`` points) the runs are
+    drawn as lines only, which a browser draws many times faster than thousands of markers.
     """
     groups = sample_colours(runs)
     traces: list[dict[str, Any]] = []
@@ -154,31 +155,26 @@ def flow_curve_overlay(runs: Sequence[Any], *, by: str = "sample") -> dict[str, 
         colour = PALETTE[number % len(PALETTE)]
         dash = DASHES[(number // len(PALETTE)) % len(DASHES)]
         sample = plot_text(rr.run.sample if rr.run.sample is not None else "(no sample name)")
-        index = np.arange(n)
-        notes = flag_notes(rr, index)
+        notes = flag_notes(rr, np.arange(n))
         x, y, stress = positive(rate, n), positive(viscosity, n), positive(columns.get("shear_stress"), n)
-        if excluded.any() and not dense:
-            symbols = np.where(excluded, "circle-open", "circle").tolist()
-            colours = np.where(excluded, EXCLUDED_COLOUR, colour).tolist()
-            marker = {"size": 7, "color": colours, "symbol": symbols, "line": {"width": 1.5, "color": colours}}
-        else:
-            marker = {"size": 7, "color": colour, "symbol": "circle", "line": {"width": 1.5, "color": colour}}
         hover = _point_hover("%{meta.symbol}", "%{meta.unit}", notes is not None, "%{fullData.legendgroup}<br>")
+        used = np.flatnonzero(~excluded)
         trace = {
             "type": "scatter", "mode": "lines" if dense else "lines+markers", "name": plot_text(rr.run.run_id),
             "legendgroup": sample, "showlegend": legend, "connectgaps": True,
-            "x": x, "y": y, "line": {"color": colour, "width": 1.2, "dash": dash}, "marker": marker,
-            "customdata": index, "hovertemplate": hover,
+            "x": x[used], "y": y[used], "line": {"color": colour, "width": 1.2, "dash": dash},
+            "marker": {"size": 7, "color": colour, "symbol": "circle", "line": {"width": 1.5, "color": colour}},
+            "customdata": used, "hovertemplate": hover,
             "meta": {"kind": "points", "run_id": rr.run.run_id, "symbol": "η", "unit": "Pa·s",
                      "n_excluded": int(excluded.sum())},
         }
         if by == "sample":
             trace["legendgrouptitle"] = {"text": sample}
         if notes is not None:
-            trace["text"] = notes
+            trace["text"] = [notes[i] for i in used.tolist()]
         traces.append(trace)
-        stress_view.append(stress)
-        if dense and excluded.any():
+        stress_view.append(stress[used])
+        if excluded.any():
             hollow = np.flatnonzero(excluded)
             companion = {
                 "type": "scatter", "mode": "markers", "name": f"{plot_text(rr.run.run_id)}: excluded points",

@@ -182,11 +182,14 @@ def test_overview_plot_has_one_trace_per_run(browser, demo_site) -> None:
         page = visit.open((site / "index.html").as_uri())
         drawn = page.evaluate("""() => {
             const plot = document.getElementById('plot-overview');
-            return {runs: plot.data.map(t => t.meta.run_id),
+            return {runs: plot.data.filter(t => t.meta.style !== 'excluded').map(t => t.meta.run_id),
+                    companions: plot.data.filter(t => t.meta.style === 'excluded').map(t => t.meta.run_id),
                     svgTraces: plot.querySelectorAll('.scatterlayer .trace').length};
         }""")
+        # one line per run through its fitted points; hollow markers of a run's left-out points apart
         assert drawn["runs"] == [rr.run.run_id for rr in result.runs]
-        assert drawn["svgTraces"] == len(result.runs)
+        assert drawn["companions"] == [rr.run.run_id for rr in result.runs if (~rr.in_fit).any()]
+        assert drawn["svgTraces"] == len(drawn["runs"]) + len(drawn["companions"])
         # the stress view swaps every trace's values and the axis title
         page.get_by_role("button", name="Shear stress τ").click()
         title = page.evaluate("() => document.getElementById('plot-overview').layout.yaxis.title.text")
@@ -194,7 +197,7 @@ def test_overview_plot_has_one_trace_per_run(browser, demo_site) -> None:
         assert page.get_by_role("button", name="Shear stress τ").get_attribute("aria-pressed") == "true"
         first = result.runs[0]
         shown = page.evaluate("() => document.getElementById('plot-overview').data[0].y")
-        stress = first.run.columns["shear_stress"]
+        stress = first.run.columns["shear_stress"][first.in_fit]
         assert [round(v, 3) if v is not None else None for v in shown] == \
             [round(float(f"{s:.6g}"), 3) if s > 0 else None for s in stress]
     finally:
@@ -266,7 +269,7 @@ def test_runs_table_sorts_and_filters_by_keyboard(browser, study) -> None:
         assert page.inner_text("[data-tools-for='runs-table'] [data-count]") == f"Showing 2 of {len(result.runs)} runs."
         visible = page.evaluate("() => document.getElementById('plot-overview').data"
                                 ".filter(t => t.visible !== false).map(t => t.meta.run_id)")
-        assert sorted(visible) == sorted(gel_runs)
+        assert sorted(set(visible)) == sorted(gel_runs)  # a run's line and its left-out points
         for _ in range(len("gel b")):
             page.keyboard.press("Backspace")
         page.select_option("#runs-table-verdict", "fail")
@@ -417,12 +420,9 @@ def test_a_dense_overview_merges_traces_and_still_filters(browser, dense_study) 
         page = visit.open((out / "site" / "index.html").as_uri())
         shown = drawn(page)
         assert set(shown["kinds"]) == {"merged"} and shown["traces"] < len(result.runs) + 1
-        # every drawable point once (excluded points on their run's line and as hollow markers)
+        # every drawable point exactly once (left-out points as hollow markers, off their run's line)
         expected = sorted(v for rr in result.runs for v in drawable(rr, "viscosity"))
-        excluded = sorted(round(float(rr.run.columns["viscosity"][i]), 4) for rr in result.runs
-                          for i in range(rr.run.n_points) if rr.excluded[i]
-                          and rr.run.columns["viscosity"][i] > 0 and rr.run.columns["shear_rate"][i] > 0)
-        assert sorted(round(v, 4) for v in shown["ys"]) == pytest.approx(sorted(expected + excluded), rel=1e-4)
+        assert sorted(round(v, 4) for v in shown["ys"]) == pytest.approx(expected, rel=1e-4)
         page.fill("#runs-table-filter", "gel")
         gel = [rr for rr in result.runs if rr.run.sample == GEL]
         assert sorted(round(v, 4) for v in drawn(page)["ys"]) == pytest.approx(

@@ -187,36 +187,47 @@ def test_plotly_only_where_there_are_plots(built) -> None:
 
 
 def test_overview_plot_one_trace_per_run_with_every_point(built) -> None:
+    """Each run: one line through the points its fits used, and (when some were left out) a
+    companion of hollow grey markers for the others, off the line; together every point once,
+    at its SI values, in both the viscosity and the stress view."""
     result, out = built
     figure = _figure(out / "site" / "index.html", "plot-overview")
     assert figure["layout"]["xaxis"]["type"] == "log" and figure["layout"]["yaxis"]["type"] == "log"
-    assert [t["meta"]["run_id"] for t in figure["data"]] == [rr.run.run_id for rr in result.runs]
+    lines = [t for t in figure["data"] if t["meta"].get("style") != "excluded"]
+    assert [t["meta"]["run_id"] for t in lines] == [rr.run.run_id for rr in result.runs]
     stress_view = next(v for v in figure["views"] if v["id"] == "stress")
-    for trace, stress, rr in zip(figure["data"], stress_view["y"], result.runs):
+    assert len(stress_view["y"]) == len(figure["data"])
+    for rr in result.runs:
         n = rr.run.n_points
-        assert trace["customdata"] == list(range(n))
-        assert len(trace["x"]) == len(trace["y"]) == len(stress) == n
-        for i in range(n):
-            rate, eta, tau = (rr.run.columns[k][i] for k in ("shear_rate", "viscosity", "shear_stress"))
-            for shown, value in ((trace["x"][i], rate), (trace["y"][i], eta), (stress[i], tau)):
-                if math.isfinite(value) and value > 0:
-                    assert shown == pytest.approx(value, rel=1e-5)
-                else:
-                    assert shown is None  # no log of 0: left out, not invented
-        symbols = trace["marker"]["symbol"]
+        mine = [(t, s) for t, s in zip(figure["data"], stress_view["y"]) if t["meta"]["run_id"] == rr.run.run_id]
+        line, *companion = mine
+        assert line[0]["marker"]["symbol"] == "circle" and "lines" in line[0]["mode"]
+        assert line[0]["customdata"] == [int(i) for i in np.flatnonzero(~rr.excluded)]
         if rr.excluded.any():
-            assert symbols == ["circle-open" if e else "circle" for e in rr.excluded]
+            (hollow, _), = companion
+            assert hollow["mode"] == "markers" and hollow["marker"]["symbol"] == "circle-open"
+            assert hollow["customdata"] == [int(i) for i in np.flatnonzero(rr.excluded)]
         else:
-            assert symbols == "circle"
+            assert companion == []
+        shown = sorted((i, t["x"][k], t["y"][k], s[k]) for t, s in mine for k, i in enumerate(t["customdata"]))
+        assert [i for i, *_ in shown] == list(range(n))
+        for i, x, y, tau in shown:
+            rate, eta, stress = (rr.run.columns[k][i] for k in ("shear_rate", "viscosity", "shear_stress"))
+            for drawn, value in ((x, rate), (y, eta), (tau, stress)):
+                if math.isfinite(value) and value > 0:
+                    assert drawn == pytest.approx(value, rel=1e-5)
+                else:
+                    assert drawn is None  # no log of 0: left out, not invented
     fluid_a = by_sample(result, EVIL)
     trace_a = next(t for t in figure["data"] if t["meta"]["run_id"] == fluid_a.run.run_id)
     assert trace_a["x"] == pytest.approx(list(RATES_A), rel=1e-5)
     assert trace_a["y"][0] == pytest.approx(K_A * RATES_A[0] ** (N_A - 1), rel=1e-2)  # Pa·s, not mPa·s
     gel = by_sample(result, GEL, 25.0)
     assert bool(gel.excluded[0]) and int(gel.excluded.sum()) == 1
-    trace_gel = next(t for t in figure["data"] if t["meta"]["run_id"] == gel.run.run_id)
-    assert trace_gel["x"][0] is None and trace_gel["marker"]["symbol"][0] == "circle-open"
-    assert "excluded from fits" in trace_gel["text"][0]
+    hollow_gel = next(t for t in figure["data"] if t["meta"]["run_id"] == gel.run.run_id
+                      and t["meta"].get("style") == "excluded")
+    assert hollow_gel["customdata"] == [0] and hollow_gel["x"][0] is None
+    assert "excluded from fits" in hollow_gel["text"][0]
 
 
 def test_overview_table_key_results_and_verdicts(built) -> None:
@@ -417,8 +428,9 @@ def test_sample_page_compares_runs_and_temperatures(built) -> None:
     runs = [rr for rr in result.runs if rr.run.sample == GEL]
     assert len(runs) == 2 and {rr.run.temperature for rr in runs} == {25.0, 40.0}
     overlay = _figure(page, "plot-sample")
-    assert [t["meta"]["run_id"] for t in overlay["data"]] == [rr.run.run_id for rr in runs]
-    assert overlay["data"][0]["line"]["color"] != overlay["data"][1]["line"]["color"]
+    lines = [t for t in overlay["data"] if t["meta"].get("style") != "excluded"]
+    assert [t["meta"]["run_id"] for t in lines] == [rr.run.run_id for rr in runs]
+    assert lines[0]["line"]["color"] != lines[1]["line"]["color"]
     for rr in runs:
         assert f'href="../runs/{rr.run.run_id}.html"' in text
         for p in rr.selected.parameters:
@@ -650,7 +662,10 @@ def test_a_large_overlay_draws_lines_and_keeps_every_excluded_point(built) -> No
     assert companions and all(list(t["customdata"]) == list(np.flatnonzero(gel.excluded)) for t in companions)
     assert all(t["marker"]["symbol"] == "circle-open" for t in companions)
     small = site_plots.flow_curve_overlay(runs)
-    assert not small["dense"] and len(small["data"]) == len(runs)  # one trace per run
+    lines = [t for t in small["data"] if t["meta"].get("style") != "excluded"]
+    assert not small["dense"] and len(lines) == len(runs)  # one line per run, markers on it
+    assert all(t["mode"] == "lines+markers" for t in lines)
+    assert len(small["data"]) == len(runs) + sum(1 for rr in runs if (~rr.in_fit).any())
 
 
 def test_residual_scale_follows_the_points_used_in_the_fit(built) -> None:
