@@ -17,7 +17,7 @@ from .derived_results import derived_results
 from .fitting import FitResult, PreparedFit, failed_fit, prepare_fit, profiled, summarise
 from .least_squares import Objective
 from .model_selection import select_model
-from .plugins.rate_sweeps import sweep_points
+from .sweeps import sweep_points
 from .profile_intervals import with_profile_intervals
 from .records import CheckContext, Conversion, Finding, Result
 from .registry import Provided, Registry
@@ -164,7 +164,7 @@ def fitted_points(run: Run, excluded: np.ndarray, config: FitConfig) -> np.ndarr
     """Boolean mask of the points the fits use: not excluded, and on the ``[fit] sweeps``.
 
     With ``sweeps = "rising"`` or ``"falling"`` a run that goes up and down in rate is fitted on
-    the points of those sweeps only (``gammadot.plugins.rate_sweeps.sweep_points``): the legs of
+    the points of those sweeps only (``gammadot.sweeps.sweep_points``): the legs of
     a thixotropic loop are two structural states. The other points are not excluded (they keep
     their place in points.parquet and on the site), just not fitted. A run measured in one
     direction, or ``sweeps = "all"``, is fitted on every point not excluded.

@@ -13,6 +13,7 @@ import numpy as np
 import pyarrow as pa
 
 from .datamodel import KNOWN_METADATA
+from .sweeps import STEP_TOLERANCE, sweeps
 from .units import DIMENSIONS
 
 if TYPE_CHECKING:
@@ -48,15 +49,20 @@ def _table(columns: dict[str, tuple[Any, pa.DataType, str | None]]) -> pa.Table:
 
 
 def infer_test_type(rate: np.ndarray | None) -> str:
-    """``steady_shear_up``/``_down``/``_loop`` from the order of shear rates."""
+    """``steady_shear_up``/``_down``/``_loop`` from the order of shear rates, by the same sweep
+    classifier the checks and the fit stage use (:func:`gammadot.sweeps.sweeps`: samples of one
+    held rate belong to one step); ``steady_shear`` when the rate never changes."""
     if rate is None or len(rate) < 2:
         return "steady_shear"
-    steps = np.diff(rate[np.isfinite(rate)])
-    if np.all(steps > 0):
-        return "steady_shear_up"
-    if np.all(steps < 0):
-        return "steady_shear_down"
-    return "steady_shear_loop" if steps[0] > 0 > steps[-1] or steps[0] < 0 < steps[-1] else "steady_shear"
+    rate = np.asarray(rate, dtype=float)
+    with np.errstate(invalid="ignore"):
+        found = sweeps(rate, np.isfinite(rate) & (rate > 0))
+    if len(found) == 1:
+        moved = rate[found[0].indices]
+        if len(moved) < 2 or np.ptp(moved) <= STEP_TOLERANCE * np.max(np.abs(moved)):
+            return "steady_shear"  # one held rate: no sweep
+        return "steady_shear_up" if found[0].direction > 0 else "steady_shear_down"
+    return "steady_shear_loop" if len(found) >= 2 else "steady_shear"
 
 
 def runs_table(result: "StudyResult") -> pa.Table:

@@ -69,11 +69,11 @@ import numpy as np
 from gammadot.datamodel import Run
 from gammadot.hookspecs import hookimpl
 from gammadot.records import Check, CheckContext, CheckSetting, Finding
+from gammadot.sweeps import sweeps
 
 from .check_inputs import num, percent, setting, usable
 from .checks_thixotropy import significant_loop
 from .geometry_facts import PLATE_TYPES
-from .rate_sweeps import sweeps
 
 SAMPLE_LOSS_ID = "sample_loss"
 NON_MONOTONIC_ID = "non_monotonic"

@@ -34,10 +34,10 @@ import numpy as np
 from gammadot.datamodel import Run
 from gammadot.hookspecs import hookimpl
 from gammadot.records import Check, CheckContext, CheckSetting, Finding
+from gammadot.sweeps import held_steps
 
 from .check_inputs import num, percent, sample_density, setting, usable, with_prefix
 from .geometry_facts import geometry_facts
-from .rate_sweeps import held_steps
 
 CHECK_ID = "steady_state"
 MIN_DRIFT_SAMPLES = 3

@@ -38,9 +38,9 @@ from gammadot.config import check_settings
 from gammadot.datamodel import Run
 from gammadot.hookspecs import hookimpl
 from gammadot.records import Check, CheckContext, CheckSetting, Finding
+from gammadot.sweeps import Sweep, loop_legs
 
 from .check_inputs import num, percent, setting, usable
-from .rate_sweeps import Sweep, loop_legs
 
 CHECK_ID = "hysteresis_loop"
 

@@ -25,9 +25,9 @@ import numpy as np
 from gammadot.config import check_settings
 from gammadot.hookspecs import hookimpl
 from gammadot.records import Analysis, AnalysisOutput, AnalysisTable, CheckSetting, Finding
+from gammadot.sweeps import sweeps
 
 from .check_inputs import num, percent, usable
-from .rate_sweeps import sweeps
 
 ANALYSIS_ID = "replicates"
 MIN_POINTS = 2

@@ -17,7 +17,7 @@ import pytest
 
 from gammadot.config import FitConfig, StudyConfig
 from gammadot.datamodel import Run
-from gammadot.plugins.rate_sweeps import sweep_points
+from gammadot.sweeps import sweep_points
 from gammadot.processing import fit_run, fitted_points, process_run, run_derived_results
 
 from flow_curves import moore_loop

@@ -195,3 +195,20 @@ def test_help_speaks_to_a_rheologist() -> None:
     result = CliRunner().invoke(main, ["run", "--help"])
     assert result.exit_code == 0
     assert "shear stress and shear rate" in result.output and "--out" in result.output
+
+
+@pytest.mark.parametrize(("rate", "expected"), [
+    ([0.1, 1.0, 10.0, 100.0], "steady_shear_up"),
+    ([100.0, 10.0, 1.0], "steady_shear_down"),
+    ([0.1, 1.0, 10.0, 1.0, 0.1], "steady_shear_loop"),
+    ([10.0, 1.0, 0.1, 1.0, 10.0], "steady_shear_loop"),
+    ([0.1, 0.1005, 1.0, 1.002, 10.0], "steady_shear_up"),  # samples of held steps (within 2 %)
+    ([5.0, 5.01, 4.99, 5.0], "steady_shear"),  # one held rate: no sweep
+    ([0.1, float("nan"), 10.0, 100.0], "steady_shear_up"),
+    ([3.0], "steady_shear"),
+])
+def test_test_type_follows_the_order_of_the_rates(rate, expected) -> None:
+    """runs.parquet test_type, from the same sweep classifier as the checks (held steps are one step)."""
+    from gammadot.tables import infer_test_type
+
+    assert infer_test_type(np.array(rate)) == expected

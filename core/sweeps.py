@@ -3,7 +3,9 @@
 A flow curve is measured as one or more sweeps (rate rising, then maybe falling again for a
 thixotropy loop), each made of steps where the instrument holds a rate (or a stress) while it
 samples. Checks that compare a curve with itself need these pieces: the shape checks look at one
-sweep at a time in order of rate, the steady-state check at the time spent in each step.
+sweep at a time in order of rate, the steady-state check at the time spent in each step. The one
+classifier of sweeps for the whole pipeline: the fit stage (``[fit] sweeps``), the runs table's
+``test_type``, the built-in checks and analyses, and plugins (``gammadot.sweeps``).
 """
 
 from __future__ import annotations
