@@ -667,7 +667,7 @@ def methods_context(result: Any) -> dict[str, Any]:
         "fit": {"space": config.fit.space, "weights": config.fit.weights, "loss": config.fit.loss,
                 "loss_scale": fmt(config.fit.loss_scale) if config.fit.loss_scale is not None else "—",
                 "shear_rates": ", ".join(f"{fmt(r)} 1/s" for r in config.fit.shear_rates) or "none set",
-                "all_models": config.fit.models is None},
+                "all_models": config.fit.models is None, "sweeps": config.fit.sweeps},
         "specs": specs, "plugins": plugins, "libraries": libraries, "inputs": inputs, "limits": limits,
         "density": _quantity_text(config.density, "density") if config.density is not None else None,
         "has_plots": False,

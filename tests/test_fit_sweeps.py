@@ -162,5 +162,7 @@ def test_a_thixotropic_loop_fitted_on_its_falling_sweep(gammadot_study) -> None:
     assert all(f'id="point-{i}"' in page for i in range(25))  # every point is on the run page
     # the rising leg is drawn hollow as "not used in fits", not among the fitted points
     assert "Measured, not used in fits" in page and "not fitted" in page
+    methods = (out.out_dir / "site" / "methods.html").read_text(encoding="utf-8")
+    assert "only the points of its <strong>falling</strong>-rate sweeps are fitted" in methods
     assert "Measured, not used in fits" not in _paint_study(gammadot_study, "all").run_page(
         out.table("runs")[0]["run_id"])
