@@ -81,25 +81,28 @@ def _starts(model: Model, rate: np.ndarray, values: np.ndarray) -> np.ndarray:
     return np.array([start[p.name] for p in model.parameters])
 
 
-def _median_cpu(work: Callable[[], object]) -> float:
-    times = []
-    for _ in range(REPEATS):
-        t = time.process_time()
-        work()
-        times.append(time.process_time() - t)
-    return statistics.median(times)
+def _bare_loop(data: list[tuple[Model, np.ndarray, np.ndarray]]) -> Callable[[], None]:
+    """The reference: ``least_squares(method="lm")`` with the analytic Jacobian on each (model,
+    rates, values), from the model's own starts (problems and starts built before the clock)."""
+    problems = [(_bare_problem(model, rate, values), _starts(model, rate, values)) for model, rate, values in data]
+
+    def bare() -> None:
+        for (residual, jacobian), p0 in problems:
+            least_squares(residual, p0, jac=jacobian, method="lm")
+
+    return bare
 
 
 def _interleaved(ours: Callable[[], object], bare: Callable[[], object]) -> tuple[float, float]:
     ours(), bare()  # warm-up (imports, caches)
     a, b = [], []
     for _ in range(REPEATS):
-        a.append(_median_cpu_once(ours))
-        b.append(_median_cpu_once(bare))
+        a.append(_cpu_seconds(ours))
+        b.append(_cpu_seconds(bare))
     return statistics.median(a), statistics.median(b)
 
 
-def _median_cpu_once(work: Callable[[], object]) -> float:
+def _cpu_seconds(work: Callable[[], object]) -> float:
     t = time.process_time()
     work()
     return time.process_time() - t
@@ -109,15 +112,11 @@ def single_model(registry, model_id: str, truths: list[dict[str, float]]) -> Non
     model = registry.models[model_id].record
     rate = np.geomspace(0.01, 1000.0, 40)
     curves = _curves(model, truths, rate, seed=7)
-    problems = [(_bare_problem(model, rate, y), _starts(model, rate, y)) for y in curves]
+    bare = _bare_loop([(model, rate, y) for y in curves])
 
     def ours():
         for y in curves:
             fit_model(model, rate, y)
-
-    def bare():
-        for (residual, jacobian), p0 in problems:
-            least_squares(residual, p0, jac=jacobian, method="lm")
 
     t_ours, t_bare = _interleaved(ours, bare)
     print(f"{model_id:17s} gammadot {len(curves) / t_ours:7.0f} fits/s   bare least_squares "
@@ -136,19 +135,11 @@ def study_fit_stage(registry) -> None:
     config = StudyConfig(title="bench")
     excluded = np.zeros(len(rate), dtype=bool)
     models = [p.record for p in registry.models.values()]
-    problems = []
-    for run in runs:
-        for model in models:
-            values = run.columns[model.target]
-            problems.append((_bare_problem(model, rate, values), _starts(model, rate, values)))
+    bare = _bare_loop([(model, rate, run.columns[model.target]) for run in runs for model in models])
 
     def ours():
         for run in runs:
             fit_run(run, excluded, config, registry)
-
-    def bare():
-        for (residual, jacobian), p0 in problems:
-            least_squares(residual, p0, jac=jacobian, method="lm")
 
     t_ours, t_bare = _interleaved(ours, bare)
     print(f"200-run fit stage ({len(models)} models each): gammadot {t_ours:.2f} s, "

@@ -515,16 +515,14 @@ def _summarise(model: Model, problem: _Problem, local: _Local, start_index: int,
         covariance = inverse * (rss / dof)
     else:
         covariance = np.full((k, k), np.nan)
-        lost = np.zeros(0, bool)
+        lost = np.zeros(k, bool)
         if dof > 0 and any(free) and np.isfinite(J).all():
             mask = np.array(free)
-            sub, lost = _inverse_normal_matrix(J[:, mask])
+            sub, lost[mask] = _inverse_normal_matrix(J[:, mask])
             covariance[np.ix_(mask, mask)] = sub * (rss / dof)
-            lost = np.zeros(k, bool) if not lost.any() else np.isin(np.arange(k), np.flatnonzero(mask)[lost])
-    if lost.any():
-        for j in np.flatnonzero(lost):
-            unresolved[j] = True
-            covariance[j, :] = covariance[:, j] = np.nan
+    for j in np.flatnonzero(lost):
+        unresolved[j] = True
+        covariance[j, :] = covariance[:, j] = np.nan
     stderr = np.sqrt(covariance.diagonal())
     return CurveFit(tuple(problem.names), p, stderr, covariance, r, rss, len(r), tuple(at_bound),
                     tuple(unresolved), local.success, local.message, local.nfev, start_index, tuple(held))

@@ -180,9 +180,10 @@ def fitted_points(run: Run, excluded: np.ndarray, config: FitConfig) -> np.ndarr
     return np.where(on_curve, chosen, included)
 
 
-def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry) -> list[FitResult]:
-    """Fit every selected model to the run's fitted points (:func:`fitted_points`) and mark
-    the selected one.
+def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Registry,
+            fitted: np.ndarray | None = None) -> list[FitResult]:
+    """Fit every selected model to the run's fitted points (``fitted``, or
+    :func:`fitted_points` of ``excluded``) and mark the selected one.
 
     Two passes: every model is fitted, then each fit's parameters are judged (with the
     identifiability profiles for the fits near the run's best AICc: ``fitting.profiled``).
@@ -190,7 +191,9 @@ def fit_run(run: Run, excluded: np.ndarray, config: StudyConfig, registry: Regis
     model_ids = config.fit.models or tuple(registry.models)
     objective = objective_of(config.fit)
     rate = run.columns.get("shear_rate")
-    excluded = ~fitted_points(run, excluded, config.fit)  # not fitted: excluded, or off the chosen sweeps
+    if fitted is None:
+        fitted = fitted_points(run, excluded, config.fit)
+    excluded = ~fitted  # not fitted: excluded, or off the chosen sweeps
     n_points = int((~excluded).sum())
     prepared: list[PreparedFit | FitResult] = []
     for model_id in model_ids:
@@ -245,13 +248,15 @@ def _guarded(provided: Provided, n_points: int, call: Callable[[], PreparedFit |
 
 
 def run_derived_results(run: Run, excluded: np.ndarray, fits: list[FitResult], config: StudyConfig,
-                        registry: Registry) -> list[Result]:
-    """Viscosities at the requested rates, zero-shear viscosity, yield stress, flow index."""
+                        registry: Registry, fitted: np.ndarray | None = None) -> list[Result]:
+    """Viscosities at the requested rates, zero-shear viscosity, yield stress, flow index; the
+    interpolated values from the fitted points (``fitted``, or :func:`fitted_points`)."""
     rate, viscosity = run.columns.get("shear_rate"), run.columns.get("viscosity")
     if rate is None or viscosity is None:
         return []
     models = {model_id: provided.record for model_id, provided in registry.models.items()}
-    fitted = fitted_points(run, excluded, config.fit)  # the interpolated values use the fitted points
+    if fitted is None:
+        fitted = fitted_points(run, excluded, config.fit)
     return derived_results(rate[fitted], viscosity[fitted], fits, models, config.fit.shear_rates)
 
 
@@ -273,9 +278,10 @@ def process_run(run: Run, config: StudyConfig, registry: Registry) -> RunResult:
     run_checks(result, config, registry, after_fit=False)
     result.fitted = fitted_points(run, result.excluded, config.fit)
     _note_unfitted_sweeps(result, config.fit)
-    result.fits = fit_run(run, result.excluded, config, registry)
+    result.fits = fit_run(run, result.excluded, config, registry, result.fitted)
     try:
-        result.results.extend(run_derived_results(run, result.excluded, result.fits, config, registry))
+        result.results.extend(run_derived_results(run, result.excluded, result.fits, config, registry,
+                                                  result.fitted))
     except Exception as exc:  # a model plugin's function failing here must not stop the run
         result.findings.append(Finding("fit.derived", "error", f"derived results could not be computed: "
                                                                 f"{type(exc).__name__}: {exc}"))

@@ -23,6 +23,8 @@ enable the check, so the gap is never silent.
 
 from __future__ import annotations
 
+from typing import Callable
+
 import numpy as np
 
 from gammadot.datamodel import Run
@@ -77,45 +79,38 @@ def _torque_points(values: np.ndarray, measured: bool, context: CheckContext) ->
     """A finding (excluded) per point whose |torque| (N·m) is outside the torque limits."""
     low, high = torque_limits(context)
     source = "torque" if measured else "torque (from the stress and the geometry)"
-    findings = []
-    for index in np.flatnonzero(np.abs(values) < low):
-        findings.append(Finding(
-            CHECK_ID, "warning",
-            f"{source} {with_prefix(values[index], 'N·m')} is below the resolvable minimum "
-            f"{with_prefix(low, 'N·m')} ([limits] torque_min), so the stress here is mostly instrument noise "
-            "and the point is left out of the fit",
-            point_index=int(index), exclude=True, value=float(values[index]), unit="N·m"))
-    for index in np.flatnonzero(np.abs(values) > high):
-        findings.append(Finding(
-            CHECK_ID, "error",
-            f"{source} {with_prefix(values[index], 'N·m')} is above the instrument's maximum "
-            f"{with_prefix(high, 'N·m')} ([limits] torque_max), so the reading is saturated and the point "
-            "is left out of the fit",
-            point_index=int(index), exclude=True, value=float(values[index]), unit="N·m"))
-    return findings
+    return (_beyond(values, np.abs(values) < low, "warning",
+                    lambda v: f"{source} {v} is below the resolvable minimum {with_prefix(low, 'N·m')} ([limits] "
+                              "torque_min), so the stress here is mostly instrument noise", "N·m")
+            + _beyond(values, np.abs(values) > high, "error",
+                      lambda v: f"{source} {v} is above the instrument's maximum {with_prefix(high, 'N·m')} "
+                                "([limits] torque_max), so the reading is saturated", "N·m"))
 
 
 def _stress_points(stress: np.ndarray, low: float | None, high: float | None) -> list[Finding]:
     """A finding (excluded) per point whose |apparent shear stress| (Pa) is outside the limits."""
-    findings = []
     magnitude = np.abs(stress)
+    findings = []
     if low is not None:
-        for index in np.flatnonzero(magnitude < low):
-            findings.append(Finding(
-                CHECK_ID, "warning",
-                f"apparent shear stress {with_prefix(stress[index], 'Pa')} is below the lowest stress the "
-                f"instrument resolves, {with_prefix(low, 'Pa')} ([limits] stress_min), so the reading here is "
-                "mostly instrument noise and the point is left out of the fit",
-                point_index=int(index), exclude=True, value=float(stress[index]), unit="Pa"))
+        findings += _beyond(stress, magnitude < low, "warning",
+                            lambda v: f"apparent shear stress {v} is below the lowest stress the instrument "
+                                      f"resolves, {with_prefix(low, 'Pa')} ([limits] stress_min), so the reading "
+                                      "here is mostly instrument noise", "Pa")
     if high is not None:
-        for index in np.flatnonzero(magnitude > high):
-            findings.append(Finding(
-                CHECK_ID, "error",
-                f"apparent shear stress {with_prefix(stress[index], 'Pa')} is above the instrument's maximum "
-                f"{with_prefix(high, 'Pa')} ([limits] stress_max), so the reading is saturated and the point "
-                "is left out of the fit",
-                point_index=int(index), exclude=True, value=float(stress[index]), unit="Pa"))
+        findings += _beyond(stress, magnitude > high, "error",
+                            lambda v: f"apparent shear stress {v} is above the instrument's maximum "
+                                      f"{with_prefix(high, 'Pa')} ([limits] stress_max), so the reading is "
+                                      "saturated", "Pa")
     return sorted(findings, key=lambda f: f.point_index)
+
+
+def _beyond(values: np.ndarray, outside: np.ndarray, severity: str, says: Callable[[str], str],
+            unit: str) -> list[Finding]:
+    """One excluded point finding per ``outside`` point: ``says(value with unit)`` and why the
+    point is left out of the fit."""
+    return [Finding(CHECK_ID, severity, f"{says(with_prefix(values[i], unit))} and the point is left out of the fit",
+                    point_index=int(i), exclude=True, value=float(values[i]), unit=unit)
+            for i in np.flatnonzero(outside)]
 
 
 def _not_checked(context: CheckContext) -> Finding:
